@@ -1,0 +1,117 @@
+"""What a check sees: the staging frames after ingest and validation, plus shared helpers.
+
+Derived quantities that several checks need (species attributes joined to records, the
+segment index, exact Cp extrema per segment) are computed once and cached.
+"""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from functools import cached_property
+
+import numpy as np
+import pandas as pd
+
+from ..config import Config
+from ..constants import P_STD_BAR, R
+from ..thermo import COEF_COLUMNS, SegmentIndex, evaluate
+
+
+@dataclass
+class CheckContext:
+    """Inputs of the check stage. Frames follow the column contracts of ``ingest.base``;
+    ``species`` has one row per species key (see ``ingest.resolve``)."""
+
+    species: pd.DataFrame
+    records: pd.DataFrame
+    segments: pd.DataFrame
+    table_points: pd.DataFrame
+    reactions: pd.DataFrame
+    config: Config = field(default_factory=Config)
+    p_db_bar: float = P_STD_BAR
+
+    def tol(self, check_id: str, name: str) -> float:
+        return self.config.tol(check_id, name)
+
+    @cached_property
+    def seg_index(self) -> SegmentIndex:
+        return SegmentIndex.from_frame(self.segments)
+
+    @cached_property
+    def record_species(self) -> pd.DataFrame:
+        """Records joined with their species' attributes (state, n_atoms, geometry, …)."""
+        cols = ["species", "state", "n_atoms", "geometry", "molar_mass_g_mol", "charge_species"]
+        sp = self.species.rename(columns={"charge": "charge_species"})
+        sp = sp[[c for c in cols if c in sp.columns]]
+        rec = self.records.drop(columns=[c for c in sp.columns if c != "species" and c in self.records])
+        return rec.merge(sp, on="species", how="left")
+
+    @cached_property
+    def segment_species(self) -> pd.DataFrame:
+        """Segments with record and species attributes, sorted by record and T."""
+        rs = self.record_species[["record_id", "species", "source_id", "state", "n_atoms", "geometry"]]
+        seg = self.segments.merge(rs, on="record_id", how="left")
+        return seg.sort_values(["record_id", "t_low_k"], kind="stable").reset_index(drop=True)
+
+
+def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int = 33):
+    """Exact minimum and maximum of Cp over each segment's range, vectorised.
+
+    Cp has its extrema at the range ends or where dCp/dT = 0. Multiplying dCp/dT by T³
+    gives the polynomial −2a1 − a2 T + a4 T³ + 2a5 T⁴ + 3a6 T⁵ + 4a7 T⁶; its real roots
+    inside the range are found for all segments at once from the eigenvalues of stacked
+    companion matrices (segments grouped by polynomial degree). A coarse grid of ``n_grid``
+    points is added as a guard against ill-conditioned roots; with the roots included the
+    result does not depend on grid density, so a narrow excursion cannot be missed.
+
+    Parameters
+    ----------
+    coef : (n, 9) canonical coefficients; t_lo, t_hi : (n,) range [K].
+
+    Returns
+    -------
+    t_min [K], cp_min [J/(mol*K)], t_max [K], cp_max [J/(mol*K)] — arrays of shape (n,).
+    """
+    coef = np.asarray(coef, float)
+    n = len(coef)
+    t_lo = np.asarray(t_lo, float)
+    t_hi = np.asarray(t_hi, float)
+    if n == 0:
+        e = np.empty(0)
+        return e, e, e, e
+    a1, a2, a4, a5, a6, a7 = (coef[:, i] for i in (0, 1, 3, 4, 5, 6))
+    # derivative polynomial, highest degree first: [4a7, 3a6, 2a5, a4, 0, -a2, -2a1]
+    poly = np.stack([4 * a7, 3 * a6, 2 * a5, a4, np.zeros(n), -a2, -2 * a1], axis=1)
+    cand = [t_lo[:, None], t_hi[:, None],
+            t_lo[:, None] + (t_hi - t_lo)[:, None] * np.linspace(0, 1, n_grid)[None, :]]
+    roots_all = np.full((n, 6), np.nan)
+    nz = poly != 0
+    lead = np.where(nz.any(axis=1), nz.argmax(axis=1), 7)  # index of first nonzero coefficient
+    for k in np.unique(lead):
+        deg = 6 - k
+        if deg < 1:
+            continue
+        rows = np.flatnonzero(lead == k)
+        p = poly[rows, k:]
+        p = p / p[:, :1]
+        comp = np.zeros((len(rows), deg, deg))
+        comp[:, 0, :] = -p[:, 1:]
+        if deg > 1:
+            comp[:, np.arange(1, deg), np.arange(deg - 1)] = 1.0
+        with np.errstate(all="ignore"):
+            r = np.linalg.eigvals(comp)
+        real = np.where(np.abs(r.imag) <= 1e-9 * np.maximum(1.0, np.abs(r.real)), r.real, np.nan)
+        roots_all[rows, :deg] = real
+    inside = (roots_all > t_lo[:, None]) & (roots_all < t_hi[:, None])
+    roots_in = np.where(inside, roots_all, t_lo[:, None])
+    cand.append(roots_in)
+    t = np.concatenate(cand, axis=1)
+    cp = evaluate(coef[:, None, :], t).cp
+    imin = np.nanargmin(cp, axis=1)
+    imax = np.nanargmax(cp, axis=1)
+    rows = np.arange(n)
+    return t[rows, imin], cp[rows, imin], t[rows, imax], cp[rows, imax]
+
+
+def r_units(x: np.ndarray) -> np.ndarray:
+    """Express J/(mol*K) in units of R."""
+    return np.asarray(x) / R

@@ -1,0 +1,1 @@
+"""The ``thermoledger`` command line: a thin Typer app, one module per command."""

@@ -1,0 +1,23 @@
+"""Entry point: ``thermoledger`` with one sub-command per module of this package."""
+from __future__ import annotations
+
+import typer
+
+from . import checks as checks_cmd
+from . import run as run_cmd
+
+app = typer.Typer(no_args_is_help=True, add_completion=False,
+                  help="Ingest, check, reconcile and curate a thermochemical database.")
+
+
+@app.callback()
+def _root() -> None:
+    """thermoledger: a release tool for thermochemical databases."""
+
+
+app.command("run")(run_cmd.run)
+app.command("checks")(checks_cmd.checks)
+
+
+def main() -> None:  # console script
+    app()

@@ -1,0 +1,232 @@
+"""Species keys and chemical formulas.
+
+A species key is ``FORMULA(state)`` or ``FORMULA(state,label)`` with the state in IUPAC
+notation (``g``, ``l``, ``cr``, ``aq``). The formula may carry parentheses, multipliers,
+decimal counts and a trailing charge (``OH-``, ``Na+``, ``SO4-2``, ``e-``). Element
+symbols are validated and atomic weights taken from ``periodictable`` (IUPAC standard
+atomic weights, abridged conventional values), never from a hand table.
+"""
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass, field
+from functools import lru_cache
+
+import periodictable
+
+STATES: tuple[str, ...] = ("g", "l", "cr", "aq")
+
+#: Elements whose IUPAC standard atomic weight is an interval (IUPAC CIAAW, "Standard
+#: atomic weights of the elements 2021", Pure Appl. Chem. 94 (2022) 573).
+INTERVAL_ELEMENTS = frozenset(
+    {"H", "Li", "B", "C", "N", "O", "Mg", "Si", "S", "Cl", "Ar", "Br", "Tl", "Pb"})
+
+#: Electron pseudo-element used by NASA formula fields (``E`` with count = −charge).
+ELECTRON = "e"
+
+_KEY = re.compile(r"^\s*(?P<formula>.+?)\((?P<state>[A-Za-z]+)(?:,(?P<label>[^()]+))?\)\s*$")
+_CHARGE = re.compile(r"(?P<sign>[+-]+)(?P<n>\d*)$")
+_TOKEN = re.compile(r"([A-Z][a-z]?)|(\d+(?:\.\d+)?)|(\()|(\))|(\[)|(\])")
+
+
+class FormulaError(ValueError):
+    """A formula or species key cannot be parsed; ``str()`` says what and how to fix it."""
+
+    def __init__(self, text: str, why: str, fix: str):
+        super().__init__(text, why, fix)
+        self.text, self.why, self.fix = text, why, fix
+
+    def __str__(self) -> str:
+        return f"found {self.text!r}: {self.why} — fix: {self.fix}"
+
+
+@dataclass(frozen=True)
+class Formula:
+    """Parsed composition: element counts (floats), charge [e]."""
+
+    elements: dict = field(hash=False)
+    charge: int = 0
+
+    @property
+    def n_atoms(self) -> float:
+        """Atoms per formula unit (electrons not counted)."""
+        return float(sum(v for k, v in self.elements.items() if k != ELECTRON))
+
+    @property
+    def molar_mass_g_mol(self) -> float:
+        """Molar mass [g/mol] from IUPAC abridged standard atomic weights (periodictable);
+        the electron mass (5.486e-4 g/mol) is added or removed for ions."""
+        m = sum(periodictable.elements.symbol(el).mass * n
+                for el, n in self.elements.items() if el != ELECTRON)
+        return float(m - self.charge * 5.48579909e-4)
+
+
+@dataclass(frozen=True)
+class SpeciesKey:
+    """``FORMULA(state[,label])`` split into its parts."""
+
+    formula: str
+    state: str
+    label: str | None
+
+    @property
+    def key(self) -> str:
+        inner = self.state if not self.label else f"{self.state},{self.label}"
+        return f"{self.formula}({inner})"
+
+
+def parse_key(text: str) -> SpeciesKey:
+    """Split a species key. Raises FormulaError for a missing or unknown state."""
+    m = _KEY.match(text or "")
+    if not m:
+        raise FormulaError(text, "no (state) suffix", "write the key as FORMULA(state), "
+                           "e.g. H2O(g), C(cr,graphite)")
+    state = m.group("state")
+    if state not in STATES:
+        raise FormulaError(text, f"state {state!r} is not one of {', '.join(STATES)}",
+                           "use IUPAC state notation: g, l, cr or aq")
+    label = m.group("label").strip() if m.group("label") else None
+    return SpeciesKey(m.group("formula").strip(), state, label)
+
+
+def _check_symbol(sym: str, text: str) -> None:
+    try:
+        el = periodictable.elements.symbol(sym)
+    except ValueError:
+        raise FormulaError(text, f"unknown element symbol {sym!r}",
+                           "use a symbol of the periodic table (case matters: Co ≠ CO)")
+    if el.number == 0:
+        raise FormulaError(text, f"unknown element symbol {sym!r}", "use a real element")
+
+
+@lru_cache(maxsize=65536)
+def _parse_formula_cached(text: str) -> tuple[tuple[tuple[str, float], ...], int]:
+    body = text.strip()
+    charge = 0
+    if body in ("e-", "e"):
+        return ((ELECTRON, 1.0),), -1
+    m = _CHARGE.search(body)
+    if m and m.start() > 0:
+        signs, n = m.group("sign"), m.group("n")
+        if len(set(signs)) != 1:
+            raise FormulaError(text, "mixed charge signs", "write the charge as +, -, +2 or -2")
+        mag = int(n) if n else len(signs)
+        if n and len(signs) > 1:
+            raise FormulaError(text, "ambiguous charge", "write the charge as +2 or ++, not +2+")
+        charge = mag if signs[0] == "+" else -mag
+        body = body[: m.start()]
+    if not body:
+        raise FormulaError(text, "empty formula", "write a formula such as H2O")
+    stack: list[dict] = [{}]
+    pos = 0
+    last_group: dict | None = None
+    last_symbol: str | None = None
+    for tok in _TOKEN.finditer(body):
+        if tok.start() != pos:
+            raise FormulaError(text, f"unexpected character {body[pos]!r}",
+                               "use element symbols, counts and parentheses only")
+        pos = tok.end()
+        sym, num, op, cl, ob, cb = tok.groups()
+        if sym:
+            _check_symbol(sym, text)
+            stack[-1][sym] = stack[-1].get(sym, 0.0) + 1.0
+            last_symbol, last_group = sym, None
+        elif num:
+            count = float(num)
+            if last_group is not None:
+                for el, v in last_group.items():
+                    stack[-1][el] = stack[-1].get(el, 0.0) + v * (count - 1)
+                last_group = None
+            elif last_symbol is not None:
+                stack[-1][last_symbol] += count - 1
+                last_symbol = None
+            else:
+                raise FormulaError(text, "a count with nothing before it",
+                                   "put counts after an element or a closing parenthesis")
+        elif op or ob:
+            stack.append({})
+            last_symbol = last_group = None
+        else:
+            if len(stack) == 1:
+                raise FormulaError(text, "unbalanced parenthesis", "balance the parentheses")
+            grp = stack.pop()
+            for el, v in grp.items():
+                stack[-1][el] = stack[-1].get(el, 0.0) + v
+            last_group, last_symbol = grp, None
+    if pos != len(body):
+        raise FormulaError(text, f"unexpected character {body[pos]!r}",
+                           "use element symbols, counts and parentheses only")
+    if len(stack) != 1:
+        raise FormulaError(text, "unbalanced parenthesis", "balance the parentheses")
+    elems = {k: v for k, v in stack[0].items() if v != 0}
+    if not elems:
+        raise FormulaError(text, "no elements", "write a formula such as H2O")
+    return tuple(sorted(elems.items())), charge
+
+
+def parse_formula(text: str) -> Formula:
+    """Parse ``Ca(OH)2``, ``OH-``, ``SO4-2``, ``C1.5H3`` into element counts and charge."""
+    items, charge = _parse_formula_cached(text)
+    return Formula(dict(items), charge)
+
+
+def hill_formula(elements: dict, charge: int = 0) -> str:
+    """Hill-order formula string (C, H, then alphabetical), with charge suffix."""
+    els = {k: v for k, v in elements.items() if k != ELECTRON}
+    order = (["C", "H"] if "C" in els else []) + sorted(k for k in els if not ("C" in els and k in ("C", "H")))
+
+    def fmt(n: float) -> str:
+        return "" if n == 1 else (str(int(n)) if float(n).is_integer() else f"{n:g}")
+
+    s = "".join(f"{el}{fmt(els[el])}" for el in order)
+    if charge:
+        s += ("+" if charge > 0 else "-") + (str(abs(charge)) if abs(charge) > 1 else "")
+    if not s and charge == -1:
+        return "e-"
+    return s
+
+
+def composition_key(elements: dict, charge: int = 0) -> str:
+    """Canonical text of a composition, for grouping phases/isomers of one formula."""
+    parts = [f"{k}{v:g}" for k, v in sorted(elements.items()) if k != ELECTRON]
+    return "".join(parts) + (f"{charge:+d}" if charge else "")
+
+
+def recase_name(name: str, elements: dict, charge: int = 0) -> str | None:
+    """Re-case an upper-case name (``CL2``, ``HE``) so that its formula parse equals
+    ``elements``; ``None`` when no casing matches (the caller keeps the name and warns).
+
+    Tries every split of the letters into one- or two-letter symbols (dynamic programming
+    over the string), keeping the first whose parse matches the record's own counts.
+    """
+    target = {k: float(v) for k, v in elements.items() if k != ELECTRON and v}
+    m = _CHARGE.search(name)
+    suffix = ""
+    core = name
+    if m and m.start() > 0:
+        suffix, core = name[m.start():], name[: m.start()]
+
+    def candidates(s: str) -> list[str]:
+        if not s:
+            return [""]
+        out = []
+        ch = s[0]
+        if ch.isalpha():
+            for width in (1, 2):
+                if len(s) >= width and s[:width].isalpha():
+                    sym = s[0].upper() + s[1:width].lower()
+                    out += [sym + rest for rest in candidates(s[width:])]
+        else:
+            out += [ch + rest for rest in candidates(s[1:])]
+        return out
+
+    if len(core) > 24:
+        return None
+    for cand in candidates(core):
+        try:
+            f = parse_formula(cand + suffix)
+        except FormulaError:
+            continue
+        if {k: v for k, v in f.elements.items() if k != ELECTRON} == target:
+            return cand + suffix
+    return None

@@ -1,0 +1,100 @@
+"""Standard-state conversion of sources whose reference pressure differs from the database's.
+
+For p_s = a source's standard pressure and p° = the database's (inputs.md):
+
+* a gas's own S and gef gain R ln(p_s/p°); its G loses RT ln(p_s/p°); H and Cp unchanged;
+  a condensed phase's own functions are unchanged (its molar volume makes the pressure
+  effect V Δp ≈ 2e-5 m³/mol × 1325 Pa ≈ 0.03 J/mol, far inside every tolerance);
+* a tabulated ΔfG changes by −Δn RT ln(p_s/p°), Δn = (1 if the species is a gas) − Σ of
+  the formation reaction's coefficients of gaseous reference elements; log Kf follows;
+* a measured ΔrG or log K of a reaction changes likewise with Δn = Σ ν over gaseous species.
+
+The ideal-gas relation S(p) = S(p°) − R ln(p/p°) is standard (e.g. Atkins & de Paula,
+*Physical Chemistry*, 2006, §3.3); R ln(1.01325) = 0.1094 J/(mol·K).
+"""
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pandas as pd
+
+from ..constants import GASEOUS_REFERENCE_ATOMICITY, LN10, R
+from ..findings import make_findings
+
+
+def reference_gas_atomicity(species: pd.DataFrame) -> dict[str, float]:
+    """Element → atoms per molecule of its gaseous reference species.
+
+    The database's own declared reference species win; otherwise the standard table.
+    """
+    out = dict(GASEOUS_REFERENCE_ATOMICITY)
+    ref = species[species["reference_element"].astype(bool)]
+    for els, state, n_atoms in zip(ref["elements_json"], ref["state"], ref["n_atoms"]):
+        e = json.loads(els)
+        if len(e) == 1:
+            el = next(iter(e))
+            if state == "g":
+                out[el] = float(n_atoms)
+            else:
+                out.pop(el, None)
+    return out
+
+
+def formation_delta_n(species: pd.DataFrame) -> pd.Series:
+    """Δn of gas in each species' formation reaction from its reference elements."""
+    atom = reference_gas_atomicity(species)
+    dn = []
+    for els, state in zip(species["elements_json"], species["state"]):
+        e = json.loads(els)
+        dn.append((1.0 if state == "g" else 0.0) - sum(n / atom[k] for k, n in e.items() if k in atom))
+    return pd.Series(dn, index=species["species"].to_numpy())
+
+
+def standard_state(run) -> None:
+    """Convert every source whose ``reference_pressure_bar`` differs from the database's."""
+    f = run.frames
+    p_db = run.p_db_bar
+    f["records"]["source_pressure_bar"] = np.nan
+    for src in run.manifest.sources:
+        ratio = src.reference_pressure_bar / p_db
+        rec_mask = f["records"]["source_id"] == src.id
+        f["records"].loc[rec_mask, "source_pressure_bar"] = src.reference_pressure_bar
+        if math.isclose(ratio, 1.0, rel_tol=1e-12):
+            continue
+        lnr = math.log(ratio)
+        state = f["species"].set_index("species")["state"]
+        recs = f["records"][rec_mask]
+        gas_ids = set(recs.loc[recs["species"].map(state).eq("g"), "record_id"])
+        seg = f["segments"]
+        m = seg["record_id"].isin(gas_ids)
+        seg.loc[m, "b2"] = seg.loc[m, "b2"].astype(float) + lnr
+        tp = f["table_points"]
+        if len(tp):
+            tm = tp["record_id"].isin(set(recs["record_id"]))
+            gm = tm & tp["record_id"].isin(gas_ids)
+            for col in ("s_j_mol_k", "gef_j_mol_k"):
+                tp.loc[gm, col] = tp.loc[gm, col].astype(float) + R * lnr
+            dn = formation_delta_n(f["species"])
+            sp_of = tp.loc[tm, "record_id"].map(dict(zip(recs["record_id"], recs["species"])))
+            dn_rows = sp_of.map(dn).astype(float).to_numpy()
+            t = tp.loc[tm, "t_k"].astype(float).to_numpy()
+            tp.loc[tm, "dfg_j_mol"] = tp.loc[tm, "dfg_j_mol"].astype(float) - dn_rows * R * t * lnr
+            tp.loc[tm, "log_kf"] = tp.loc[tm, "log_kf"].astype(float) + dn_rows * lnr / LN10
+        rx = f["reactions"]
+        if len(rx):
+            rm = (rx["source_id"] == src.id) & rx["quantity"].isin(["drg", "log_k"])
+            dn = [sum(v for k, v in json.loads(s).items() if k.endswith("(g)") or "(g," in k)
+                  for s in rx.loc[rm, "stoich_json"]]
+            dn = np.asarray(dn, float)
+            t = rx.loc[rm, "t_k"].astype(float).to_numpy()
+            is_g = (rx.loc[rm, "quantity"] == "drg").to_numpy()
+            val = rx.loc[rm, "value"].astype(float).to_numpy()
+            rx.loc[rm, "value"] = np.where(is_g, val - dn * R * t * lnr, val + dn * lnr / LN10)
+        run.add_findings(make_findings(
+            check_id="schema.standard-state", severity="info", subject=src.id, subject_kind="source",
+            source_id=src.id, observed=src.reference_pressure_bar, expected=p_db, unit="bar",
+            message=(f"{src.id} is at {src.reference_pressure_bar:g} bar: converted to {p_db:g} bar "
+                     f"(gas S and gef +{R * lnr:.4f} J/(mol·K); ΔfG, log Kf, ΔrG, log K by their Δn)"),
+            hint="recorded in records.source_pressure_bar"))

@@ -1,0 +1,59 @@
+"""Helpers for fixed-column Fortran-style records (NASA 7- and 9-term files)."""
+from __future__ import annotations
+
+import math
+
+from ..errors import RecordError
+
+
+def field(line: str, start: int, stop: int) -> str:
+    """Columns ``start``..``stop`` (1-based, inclusive) of ``line``, padded if short."""
+    return line[start - 1:stop] if len(line) >= start else ""
+
+
+def number(line: str, start: int, stop: int, what: str, *, blank=None) -> float:
+    """A Fortran real in columns start..stop; ``D`` exponents accepted.
+
+    Raises RecordError naming the columns and the text when it is not a finite number.
+    A blank field returns ``blank`` if given, else raises.
+    """
+    text = field(line, start, stop).strip()
+    if not text:
+        if blank is not None:
+            return blank
+        raise RecordError(f"blank {what} in columns {start}-{stop}; expected a number")
+    try:
+        value = float(text.replace("D", "E").replace("d", "e"))
+    except ValueError:
+        raise RecordError(f"unparsable {what} {text!r} in columns {start}-{stop}; "
+                          "expected a Fortran real such as 1.2345E+03") from None
+    if not math.isfinite(value):
+        raise RecordError(f"non-finite {what} {text!r} in columns {start}-{stop}")
+    return value
+
+
+def element_pairs(text: str, width_sym: int, width_num: int, n: int, what="formula") -> dict:
+    """Parse up to ``n`` symbol+count pairs from fixed columns into {symbol: count}.
+
+    Symbols are read case-insensitively (``CL`` → ``Cl``); ``E`` is the electron
+    (count = −charge). A blank pair or a zero count is skipped.
+    """
+    out: dict[str, float] = {}
+    step = width_sym + width_num
+    for i in range(n):
+        chunk = text[i * step:(i + 1) * step]
+        sym = chunk[:width_sym].strip()
+        num = chunk[width_sym:].strip()
+        if not sym and not num:
+            continue
+        if not sym:
+            raise RecordError(f"{what}: count {num!r} without an element symbol")
+        try:
+            count = float(num.replace("D", "E")) if num else 0.0
+        except ValueError:
+            raise RecordError(f"{what}: unparsable count {num!r} for element {sym!r}") from None
+        if count == 0:
+            continue
+        s = sym[0].upper() + sym[1:].lower()
+        out[s] = out.get(s, 0.0) + count
+    return out

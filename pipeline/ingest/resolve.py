@@ -1,0 +1,127 @@
+"""Species keys for records, and the ``species`` table.
+
+Rules (inputs.md, "Species identity"): an alias from species-csv always wins (matched
+case-insensitively against the record's name or key); a record that names a full key
+(table-csv, shomate-csv) uses it; otherwise the key is built from the record: the name
+without a trailing parenthesised suffix, re-cased so its formula parse equals the record's
+own element counts, then the state (and a polymorph label taken from the suffix).
+"""
+from __future__ import annotations
+
+import json
+import re
+
+import numpy as np
+import pandas as pd
+
+from ..findings import make_findings
+from ..formula import FormulaError, SpeciesKey, composition_key, parse_formula, parse_key, recase_name
+
+_SUFFIX = re.compile(r"^(?P<base>.+?)\((?P<suffix>[^()]*)\)$")
+_STATE_WORDS = {"g": "g", "l": "l", "liq": "l", "cr": "cr", "s": "cr", "c": "cr", "aq": "aq"}
+
+
+def alias_map(species_meta: pd.DataFrame) -> dict[str, str]:
+    """Lower-cased alias or key → species key."""
+    out: dict[str, str] = {}
+    for key, aliases in zip(species_meta["species"], species_meta["aliases"].fillna("")):
+        out[key.lower()] = key
+        for a in str(aliases).split(";"):
+            if a.strip():
+                out[a.strip().lower()] = key
+    return out
+
+
+def build_key(name: str, state: str, label: str | None, elements: dict, charge: int) -> tuple[str, bool]:
+    """Key from a record's own name, state and element counts.
+
+    Returns ``(key, recased)``; ``recased`` is False when no casing of the name matched the
+    element counts and the name was kept as written.
+    """
+    base = name.strip()
+    m = _SUFFIX.match(base)
+    if m:
+        base = m.group("base")
+        suffix = m.group("suffix").strip()
+        word = suffix.lower()
+        if label is None and word not in _STATE_WORDS and state in ("cr", "l") and suffix:
+            label = suffix
+    formula = recase_name(base, elements, charge) if elements else None
+    ok = formula is not None
+    formula = formula or base
+    return SpeciesKey(formula, state, label).key, ok
+
+
+def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
+    """Assign ``species`` to every record. Returns (records, findings, bad_mask).
+
+    ``bad_mask`` marks records whose key cannot be parsed at all or whose declared key's
+    formula contradicts the record's element counts; the caller rejects them.
+    """
+    amap = alias_map(species_meta)
+    keys, warn_rows, bad, reasons = [], [], [], []
+    for row in records.itertuples(index=False):
+        elements = json.loads(row.elements_json) if isinstance(row.elements_json, str) else {}
+        key = None
+        for cand in (row.name, row.species_hint):
+            if isinstance(cand, str) and cand.lower() in amap:
+                key = amap[cand.lower()]
+                break
+        if key is None and isinstance(row.species_hint, str) and row.species_hint:
+            key = row.species_hint
+        if key is None:
+            key, ok = build_key(row.name, row.state, row.label if isinstance(row.label, str) else None,
+                                elements, int(row.charge or 0))
+            if not ok:
+                warn_rows.append((row.record_id, key, row.source_id, row.name))
+        reason = None
+        try:
+            sk = parse_key(key)
+            f = parse_formula(sk.formula)
+            if elements:
+                mine = {k: float(v) for k, v in f.elements.items() if k != "e"}
+                theirs = {k: float(v) for k, v in elements.items() if v}
+                if mine != theirs and all(k[0].isupper() for k in theirs):
+                    reason = (f"record elements {theirs} contradict species {key!r} "
+                              f"({mine}) — fix: correct the alias or the formula field")
+        except FormulaError as exc:
+            reason = f"species key: {exc}"
+        keys.append(key)
+        bad.append(reason is not None)
+        reasons.append(reason)
+    out = records.copy()
+    out["species"] = keys
+    findings = make_findings(
+        check_id="schema.species-key", severity="warning",
+        subject=[w[1] for w in warn_rows], subject_kind="species",
+        source_id=[w[2] for w in warn_rows],
+        message=[f"name {w[3]!r} could not be re-cased to match its element counts; kept as written"
+                 for w in warn_rows],
+        hint="add an alias for this record in species-csv") if warn_rows else None
+    return out, findings, np.array(bad, dtype=bool), reasons
+
+
+def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
+    """One row per species key with formula, state, label, charge, elements and molar mass."""
+    meta = species_meta.drop_duplicates("species").set_index("species")
+    rows = []
+    for key in sorted(set(keys) | set(meta.index)):
+        sk = parse_key(key)
+        f = parse_formula(sk.formula)
+        m = meta.loc[key] if key in meta.index else None
+        rows.append(dict(
+            species=key, formula=sk.formula, state=sk.state, label=sk.label, charge=f.charge,
+            elements_json=json.dumps({k: v for k, v in f.elements.items() if k != "e"}, sort_keys=True),
+            composition=composition_key(f.elements, f.charge), n_atoms=f.n_atoms,
+            molar_mass_g_mol=f.molar_mass_g_mol,
+            stated_molar_mass_g_mol=(float(m["stated_molar_mass_g_mol"]) if m is not None else np.nan),
+            reference_element=bool(m["reference_element"]) if m is not None else False,
+            geometry=(m["geometry"] if m is not None and isinstance(m["geometry"], str) else
+                      ("atom" if f.n_atoms == 1 else None)),
+            cas=(m["cas"] if m is not None else None),
+            aliases=(m["aliases"] if m is not None else ""),
+        ))
+    cols = ["species", "formula", "state", "label", "charge", "elements_json", "composition",
+            "n_atoms", "molar_mass_g_mol", "stated_molar_mass_g_mol", "reference_element",
+            "geometry", "cas", "aliases"]
+    return pd.DataFrame(rows, columns=cols)

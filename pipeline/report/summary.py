@@ -1,0 +1,35 @@
+"""The plain-text summary printed at the end of ``thermoledger run``."""
+from __future__ import annotations
+
+import pandas as pd
+
+
+def summary_text(run, max_rows: int = 40) -> str:
+    f = run.findings if run.findings is not None else pd.DataFrame(columns=["severity"])
+    m = run.manifest
+    lines = [f"thermoledger run {run.run_id} — {m.database.name}",
+             f"  sources: {len(m.sources)}   species: {len(run.frames['species'])}   "
+             f"records: {len(run.frames['records'])}   segments: {len(run.frames['segments'])}   "
+             f"table rows: {len(run.frames['table_points'])}   reactions: {len(run.frames['reactions'])}   "
+             f"rejected: {len(run.frames['rejected'])}"]
+    live = f[~f["waived"].astype(bool)] if len(f) else f
+    counts = live["severity"].value_counts() if len(live) else pd.Series(dtype=int)
+    lines.append(f"  findings: {int(counts.get('error', 0))} error, {int(counts.get('warning', 0))} warning, "
+                 f"{int(counts.get('info', 0))} info" + (f"   ({int(f['waived'].sum())} waived)" if len(f) else ""))
+    if len(live):
+        by = live.groupby(["check_id", "severity"]).size().reset_index(name="n")
+        lines.append("")
+        lines.append("  by check:")
+        for r in by.itertuples(index=False):
+            lines.append(f"    {r.check_id:34s} {r.severity:8s} {r.n:6d}")
+        lines.append("")
+        lines.append("  errors and warnings:")
+        shown = live[live["severity"].isin(["error", "warning"])]
+        for r in shown.head(max_rows).itertuples(index=False):
+            src = f" [{r.source_id}]" if isinstance(r.source_id, str) else ""
+            lines.append(f"    {r.severity:7s} {r.check_id:30s} {r.subject}{src}: {r.message}")
+        if len(shown) > max_rows:
+            lines.append(f"    … {len(shown) - max_rows} more in curated/report/ and the findings table")
+    lines.append("")
+    lines.append(f"  outputs: {run.out}/thermo.duckdb, {run.out}/parquet/, {run.out}/report/")
+    return "\n".join(lines) + "\n"

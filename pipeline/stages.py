@@ -1,0 +1,294 @@
+"""The ordered stages of a run: ingest → validate → check → reconcile → emit → report.
+
+Each stage is a function of the :class:`Run` that adds frames, findings or files to it.
+The runner walks :data:`STAGES` in order, times each stage, and collects every finding
+before the exit code is decided (:func:`exit_code`).
+"""
+from __future__ import annotations
+
+import hashlib
+import time
+import traceback
+from dataclasses import dataclass, field
+from datetime import datetime, timezone
+from pathlib import Path
+from typing import Callable
+
+import numpy as np
+import pandas as pd
+
+from . import __version__
+from .config import Config
+from .constants import P_STD_BAR
+from .errors import InputError
+from .findings import FINDING_COLUMNS, empty_findings, fingerprint, make_findings
+from .ingest import base as ib
+from .manifest import DATA_FORMATS, Manifest, load_manifest, unlisted_files
+
+
+@dataclass
+class Run:
+    """Everything one run reads, derives and writes. Stages fill it in order."""
+
+    raw: Path
+    out: Path
+    config: Config = field(default_factory=Config)
+    waivers: Path | None = None
+    fail_on: str = "error"
+    progress: Callable[[str], None] = lambda msg: None
+    manifest: Manifest | None = None
+    frames: dict[str, pd.DataFrame] = field(default_factory=dict)
+    findings_parts: list[pd.DataFrame] = field(default_factory=list)
+    source_stats: list[dict] = field(default_factory=list)
+    seconds: dict[str, float] = field(default_factory=dict)
+    counts: dict[str, int] = field(default_factory=dict)
+    run_id: str = ""
+    started: str = ""
+    findings: pd.DataFrame | None = None
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def p_db_bar(self) -> float:
+        return self.manifest.database.reference_pressure_bar if self.manifest else P_STD_BAR
+
+    def add_findings(self, df: pd.DataFrame | None) -> None:
+        if df is not None and len(df):
+            self.findings_parts.append(df)
+
+    def reject(self, rows: pd.DataFrame) -> None:
+        if len(rows):
+            self.frames["rejected"] = pd.concat([self.frames["rejected"], rows[list(ib.REJECTED_COLUMNS)]],
+                                                ignore_index=True)
+
+
+# ------------------------------------------------------------------------------ ingest
+
+def _sha256(path: Path) -> str:
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+def stage_ingest(run: Run) -> None:
+    """Read the manifest and every source into staging frames (SI units, raw keys)."""
+    from .ingest import READERS
+    from .ingest.convert import standard_state
+    from .ingest.resolve import resolve_records, species_table
+
+    run.manifest = m = load_manifest(run.raw)
+    results: dict[str, ib.ReadResult] = {}
+    for src in m.sources:
+        reader = READERS.get(src.format)
+        if reader is None:
+            raise InputError("sources.toml", src.line, f"format {src.format!r}",
+                             "a format this version reads: " + ", ".join(sorted(READERS)),
+                             "upgrade thermoledger or convert the file")
+        run.progress(f"reading {src.path}")
+        results[src.id] = reader(m.path_of(src), src, src.path)
+    frames = {}
+    for name, cols in (("records", ib.RECORD_COLUMNS), ("segments", ib.SEGMENT_COLUMNS),
+                       ("table_points", ib.TABLE_POINT_COLUMNS), ("species_meta", ib.SPECIES_META_COLUMNS),
+                       ("reactions", ib.REACTION_COLUMNS), ("rejected", ib.REJECTED_COLUMNS)):
+        parts = [getattr(r, name) for r in results.values() if len(getattr(r, name))]
+        frames[name] = pd.concat(parts, ignore_index=True) if parts else ib.empty(cols)
+    run.frames = frames
+    run.extra["n_read"] = {sid: r.n_read for sid, r in results.items()}
+    run.extra["notes"] = [n for r in results.values() for n in r.notes]
+
+    # Species keys for records, then the species table.
+    recs, warn, bad, reasons = resolve_records(frames["records"], frames["species_meta"])
+    run.add_findings(warn)
+    if bad.any():
+        _reject_records(run, recs[bad], [r for r, b in zip(reasons, bad) if b])
+        recs = recs[~bad]
+    frames["records"] = recs.reset_index(drop=True)
+    keys = list(frames["records"]["species"]) + _reaction_species(frames["reactions"])
+    frames["species"] = species_table(keys, frames["species_meta"])
+    standard_state(run)
+    for f in unlisted_files(m):
+        run.add_findings(make_findings(check_id="schema.unlisted-file", severity="warning", subject=f,
+                                       subject_kind="source", message=f"raw/{f} is not listed in sources.toml",
+                                       hint="add a [[source]] for it, or move it out of raw/"))
+    for src in m.sources:
+        if src.format in DATA_FORMATS and not (src.citation or "").strip():
+            run.add_findings(make_findings(check_id="schema.citation", severity="warning", subject=src.id,
+                                           subject_kind="source", source_id=src.id,
+                                           message=f"source {src.id} has no citation",
+                                           hint="add citation = \"who, what, when\" to its [[source]]"))
+
+
+def _reaction_species(reactions: pd.DataFrame) -> list[str]:
+    import json
+    out: list[str] = []
+    for s in reactions["stoich_json"].dropna():
+        out.extend(json.loads(s).keys())
+    return out
+
+
+def _reject_records(run: Run, recs: pd.DataFrame, reasons: list[str]) -> None:
+    """Move whole records (and their segments/table points) to ``rejected``."""
+    ids = set(recs["record_id"])
+    rows = pd.DataFrame({"source_id": recs["source_id"].to_numpy(), "file": recs["file"].to_numpy(),
+                         "line": recs["line"].to_numpy(),
+                         "raw_text": [f"record {n}" for n in recs["name"]], "reason": reasons})
+    # a table record's input records are its rows: reject each row
+    tp = run.frames["table_points"]
+    in_tp = tp["record_id"].isin(ids)
+    if in_tp.any():
+        t = tp[in_tp].merge(recs[["record_id", "file"]], on="record_id")
+        reason_of = dict(zip(recs["record_id"], reasons))
+        rows = pd.concat([rows[~recs["kind"].eq("table").to_numpy()], pd.DataFrame({
+            "source_id": t["source_id"], "file": t["file"], "line": t["line"],
+            "raw_text": [f"table row of {r}" for r in t["record_id"]],
+            "reason": [reason_of[r] for r in t["record_id"]]})], ignore_index=True)
+        run.frames["table_points"] = tp[~in_tp].reset_index(drop=True)
+    run.reject(rows)
+    seg = run.frames["segments"]
+    run.frames["segments"] = seg[~seg["record_id"].isin(ids)].reset_index(drop=True)
+
+
+# ---------------------------------------------------------------------------- validate
+
+def stage_validate(run: Run) -> None:
+    """pandera schemas on every staging frame; failing rows → rejected (whole records)."""
+    from .validate import validate_frames
+
+    validate_frames(run)
+    _accounting(run)
+
+
+def _accounting(run: Run) -> None:
+    """Rows read = accepted + rejected for every source; a mismatch is a bug, said loudly."""
+    from .ingest import PRIMARY_FRAME
+
+    rej = run.frames["rejected"]
+    for src in run.manifest.sources:
+        primary = PRIMARY_FRAME[src.format]
+        if primary == "shomate_rows":
+            f = run.frames["segments"].merge(run.frames["records"][["record_id", "source_id"]], on="record_id")
+        else:
+            f = run.frames[primary]
+        accepted = int((f["source_id"] == src.id).sum())
+        rejected = int((rej["source_id"] == src.id).sum())
+        read = int(run.extra["n_read"][src.id])
+        run.source_stats.append(dict(source_id=src.id, rows_read=read, rows_accepted=accepted,
+                                     rows_rejected=rejected))
+        if read != accepted + rejected:
+            run.add_findings(make_findings(
+                check_id="schema.rejected", severity="error", subject=src.id, subject_kind="source",
+                source_id=src.id, observed=read, expected=accepted + rejected,
+                message=f"{src.id}: {read} records read but {accepted} accepted + {rejected} rejected",
+                hint="an internal accounting error: please report it with this source file"))
+    if len(rej):
+        run.add_findings(make_findings(
+            check_id="schema.rejected", severity="error",
+            subject=[f"{f}:{l}" for f, l in zip(rej["file"], rej["line"])], subject_kind="source",
+            source_id=rej["source_id"], message=[f"{f}:{l}: {r}" for f, l, r in zip(rej["file"], rej["line"], rej["reason"])],
+            hint="the record is kept verbatim in the rejected table"))
+
+
+# ------------------------------------------------------------------------------- check
+
+def stage_check(run: Run) -> None:
+    """Run every registered check on the validated frames."""
+    from .checks import registry
+    from .checks.context import CheckContext
+
+    f = run.frames
+    ctx = CheckContext(species=f["species"], records=f["records"], segments=f["segments"],
+                       table_points=f["table_points"], reactions=f["reactions"],
+                       config=run.config, p_db_bar=run.p_db_bar)
+    run.extra["ctx"] = ctx
+    for spec in registry.runnable("check"):
+        if spec.id in run.config.disabled:
+            continue
+        run.progress(f"check {spec.id}")
+        run.add_findings(_safe(spec, ctx))
+
+
+def _safe(spec, ctx) -> pd.DataFrame:
+    """Run one check; a crash becomes an error finding instead of ending the run."""
+    try:
+        return spec.func(ctx)
+    except Exception as exc:  # a broken check must not hide the others' findings
+        tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
+        return make_findings(check_id=spec.id, severity="error", subject="(check failed)",
+                             subject_kind="database", message=f"check {spec.id} failed: {tb}",
+                             hint="a thermoledger bug: please report it with the input that caused it")
+
+
+# --------------------------------------------------------------------------- reconcile
+
+def stage_reconcile(run: Run) -> None:
+    """Reaction residuals, cycles and the network fit (checks registered for stage 'network')."""
+    from .checks import registry
+
+    ctx = run.extra["ctx"]
+    for spec in registry.runnable("network"):
+        if spec.id in run.config.disabled:
+            continue
+        run.progress(f"check {spec.id}")
+        run.add_findings(_safe(spec, ctx))
+
+
+# -------------------------------------------------------------------------------- emit
+
+def collect_findings(run: Run) -> pd.DataFrame:
+    """All findings in a fixed order with fingerprints (waivers/history added by emit)."""
+    parts = [p for p in run.findings_parts if len(p)]
+    df = pd.concat(parts, ignore_index=True) if parts else empty_findings()
+    sev_rank = df["severity"].map({"error": 0, "warning": 1, "info": 2})
+    df = (df.assign(_r=sev_rank).sort_values(["_r", "check_id", "subject", "source_id", "t_k"],
+                                             kind="stable", na_position="first")
+          .drop(columns="_r").reset_index(drop=True))
+    df["waived"] = False
+    df["waiver_reason"] = None
+    df["fingerprint"] = fingerprint(df) if len(df) else pd.Series(dtype=object)
+    df["first_seen_run"] = run.run_id
+    return df[list(FINDING_COLUMNS)]
+
+
+def stage_emit(run: Run) -> None:
+    """Write the curated release (DuckDB, Parquet) atomically."""
+    from .curate import write_release
+
+    run.findings = collect_findings(run)
+    write_release(run)
+
+
+def stage_report(run: Run) -> None:
+    """Reports beside the release (HTML, JSON, JUnit) when the report package provides them."""
+    from . import report
+
+    report.write_reports(run)
+
+
+STAGES: tuple[tuple[str, Callable[[Run], None]], ...] = (
+    ("ingest", stage_ingest),
+    ("validate", stage_validate),
+    ("check", stage_check),
+    ("reconcile", stage_reconcile),
+    ("emit", stage_emit),
+    ("report", stage_report),
+)
+
+
+def execute(run: Run) -> Run:
+    """Walk the stages in order, timing each."""
+    run.started = datetime.now(timezone.utc).isoformat(timespec="seconds")
+    run.run_id = run.started.replace(":", "").replace("-", "").replace("+0000", "Z")
+    for name, fn in STAGES:
+        t0 = time.perf_counter()
+        fn(run)
+        run.seconds[name] = time.perf_counter() - t0
+    from .curate import publish
+
+    publish(run)
+    return run
+
+
+def exit_code(findings: pd.DataFrame, fail_on: str) -> int:
+    """0 when nothing unwaived is at or above ``fail_on``; 1 otherwise (outputs.md)."""
+    if fail_on == "never" or findings is None or not len(findings):
+        return 0
+    levels = {"error": ("error",), "warning": ("error", "warning")}[fail_on]
+    live = findings[~findings["waived"].astype(bool)]
+    return int(live["severity"].isin(levels).any())
