@@ -222,6 +222,8 @@ def stage_reconcile(run: Run) -> None:
     from .checks import registry
 
     ctx = run.extra["ctx"]
+    ctx.prior_findings = (pd.concat(run.findings_parts, ignore_index=True)
+                          if run.findings_parts else empty_findings())
     for spec in registry.runnable("network"):
         if spec.id in run.config.disabled:
             continue
@@ -251,6 +253,9 @@ def stage_emit(run: Run) -> None:
     from .curate import write_release
 
     run.findings = collect_findings(run)
+    ctx = run.extra.get("ctx")
+    if ctx is not None:
+        run.extra.setdefault("extra_tables", {}).update(ctx.tables_out)
     write_release(run)
 
 

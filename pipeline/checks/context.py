@@ -28,9 +28,20 @@ class CheckContext:
     reactions: pd.DataFrame
     config: Config = field(default_factory=Config)
     p_db_bar: float = P_STD_BAR
+    #: Side tables a check produces for the release (e.g. ``reconciled``); emit writes them.
+    tables_out: dict = field(default_factory=dict)
+    #: Findings of earlier checks (network checks may read the per-record ones).
+    prior_findings: pd.DataFrame | None = None
 
     def tol(self, check_id: str, name: str) -> float:
         return self.config.tol(check_id, name)
+
+    @cached_property
+    def functions(self):
+        """:class:`~pipeline.functions.RecordFunctions` over every record."""
+        from ..functions import RecordFunctions
+
+        return RecordFunctions(self.records, self.segments, self.table_points)
 
     @cached_property
     def seg_index(self) -> SegmentIndex:
