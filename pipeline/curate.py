@@ -1,13 +1,27 @@
-"""Write the curated release: ``thermo.duckdb`` with commented tables, and Parquet copies.
+"""Write the curated release: ``thermo.duckdb`` with commented tables and SQL macros, and
+Parquet copies; derive preferred records, refits and the ``properties`` table.
 
-Outputs are built in a fresh folder beside the release (``OUT/.build-<run>``) and swapped
-in by :func:`publish` only when complete, so a crash leaves the previous release intact.
+Atomic publication. A run builds its whole release in a fresh folder beside the current
+one (``OUT/.build-<run>-<pid>``). :func:`publish` renames that folder, complete, to
+``OUT/.releases/<run>-<pid>`` and then switches the symbolic link ``OUT/.current`` to it
+with one ``os.replace`` — an atomic rename (POSIX ``rename(2)``) — so the release items
+``OUT/thermo.duckdb``, ``OUT/parquet`` and ``OUT/report`` (themselves fixed links into
+``.current``) change all together, from the complete old release to the complete new one.
+A run killed before the switch leaves the previous release untouched; its stale build
+folder is removed by the next run. Where symbolic links are unavailable, each item is
+renamed into place on its own (each item still either wholly old or wholly new).
+
+Determinism. Every table is sorted on a full key before it is written, and derived
+values are computed with numpy (no multithreaded floating-point aggregation), so the same
+inputs give the same table contents; only ``runs`` and ``findings.first_seen_run`` carry
+run metadata.
 """
 from __future__ import annotations
 
 import json
 import os
 import shutil
+import time
 from pathlib import Path
 
 import duckdb
@@ -53,8 +67,57 @@ DOCS: dict[str, tuple[str, dict[str, str]]] = {
         "record_id": "record", "segment": "index within the record, ascending T",
         "t_low_k": "segment lower bound [K]", "t_high_k": "segment upper bound [K]",
         **{c: f"canonical coefficient {c} (Cp/R in powers of K)" for c in COEF_COLUMNS}}),
-    "table_points": ("Tabulated rows as read, converted to SI and to the database's standard pressure.", {}),
-    "reactions": ("Reaction measurements with parsed stoichiometry, SI values.", {}),
+    "table_points": ("Tabulated rows as read, converted to SI and to the database's standard pressure.", {
+        "record_id": "table record", "source_id": "manifest id", "line": "line in the raw file",
+        "t_k": "temperature [K]", "cp_j_mol_k": "standard molar heat capacity [J/(mol*K)]",
+        "s_j_mol_k": "standard molar entropy [J/(mol*K)]",
+        "gef_j_mol_k": "Gibbs energy function −(G − H(298.15))/T [J/(mol*K)]",
+        "h_minus_href_j_mol": "H(T) − H(298.15) [J/mol]", "dfh_j_mol": "standard enthalpy of formation [J/mol]",
+        "dfg_j_mol": "standard Gibbs energy of formation [J/mol]",
+        "log_kf": "decimal log of the formation equilibrium constant [1]"}),
+    "reactions": ("Reaction measurements with parsed stoichiometry, SI values; computed values and "
+                  "residuals where the network stage supplied them.", {
+        "reaction_id": "unique id", "source_id": "manifest id", "file": "raw file", "line": "line in the raw file",
+        "equation": "equation as written", "stoich_json": "species → stoichiometric coefficient (products > 0), JSON",
+        "quantity": "drh | drg | log_k", "t_k": "temperature of the measurement [K]",
+        "value": "measured value [J/mol; 1 for log_k]", "uncertainty": "standard uncertainty, k = 1 [unit of value]",
+        "unit": "unit as written in the source", "series": "series id (log K at several T)",
+        "method": "experimental method", "computed": "value computed from the curated species [unit of value]",
+        "residual": "measured − computed [unit of value]", "z": "residual / combined standard uncertainty [1]"}),
+    "reconciled": ("Network least-squares ΔfH°(298.15) per species with its standard uncertainty and the fit's χ².", {}),
+    "properties": ("Curated properties of each species' preferred record on the standard grid: 298.15 K, then "
+                   "every 100 K from max(100 K, lower bound rounded up) to the upper bound. Formation values "
+                   "from the elements' reference species (ΔfH = H − Σ ν_el H_ref,el).", {
+        "species": "species key", "record_id": "preferred record evaluated", "t_k": "temperature [K]",
+        "cp_j_mol_k": "heat capacity Cp [J/(mol*K)]", "h_j_mol": "absolute enthalpy, H(298.15) = ΔfH° [J/mol]",
+        "s_j_mol_k": "entropy [J/(mol*K)]", "g_j_mol": "Gibbs energy G = H − TS [J/mol]",
+        "h_minus_h298_j_mol": "H(T) − H(298.15) [J/mol]",
+        "gef_j_mol_k": "Gibbs energy function −(G − H(298.15))/T [J/(mol*K)]",
+        "dfh_j_mol": "enthalpy of formation from the reference elements [J/mol]",
+        "dfg_j_mol": "Gibbs energy of formation from the reference elements [J/mol]",
+        "log_kf": "decimal log of the formation equilibrium constant, −ΔfG/(RT ln 10) [1]"}),
+    "preferred_segments": ("Canonical segments the SQL macros cp/h/s/g evaluate: the preferred record's, or "
+                           "for a tabulated preferred record its NASA-9 refit (see fits).", {
+        "species": "species key", "record_id": "preferred record", "origin": "record | refit (fitted to a table)",
+        "segment": "index within the species, ascending T", "t_low_k": "segment lower bound [K]",
+        "t_high_k": "segment upper bound [K]",
+        **{c: f"canonical coefficient {c}" for c in COEF_COLUMNS},
+        "is_last": "the highest segment (used above its range)",
+        "h_defined": "absolute H known (false: a table without ΔfH at 298.15 K; h() and g() are NULL)"}),
+    "fits": ("Constrained least-squares refits (two ranges; Cp, H, S continuous at the joint; H and S exact "
+             "at 298.15 K) of tabulated preferred records, with residuals against the table.", {
+        "species": "species key", "record_id": "table record fitted", "form": "nasa7 | nasa9",
+        "t_low_k": "fit range lower bound [K]", "t_high_k": "fit range upper bound [K]",
+        "t_joint_k": "joint temperature chosen to minimise the residual [K]",
+        "t_anchor_k": "temperature where H and S are exact [K]",
+        "max_abs_dcp_j_mol_k": "max |ΔCp| fit − table [J/(mol*K)]", "max_rel_dcp": "max |ΔCp|/Cp [1]",
+        "rms_dcp_j_mol_k": "rms ΔCp [J/(mol*K)]", "max_abs_dh_j_mol": "max |ΔH| [J/mol]",
+        "max_abs_ds_j_mol_k": "max |ΔS| [J/(mol*K)]", "t_worst_k": "temperature of the worst relative ΔCp [K]",
+        "h298_basis": "where H(298.15) comes from: table dfh, or unknown (set to 0)"}),
+    "element_references": ("Reference species of each element used for formation values.", {
+        "element": "element symbol (e: the electron)", "species": "reference species key",
+        "atoms": "atoms of the element per formula unit of the reference species [1]"}),
+    "macros": ("The SQL macros stored in this file.", {"name": "macro name", "description": "signature and meaning"}),
     "findings": ("One row per finding of a check (fixed column order).", {
         "check_id": "dotted check id", "severity": "error | warning | info",
         "subject": "species key, reaction id, cycle:… or series:…", "subject_kind": "species | reaction | cycle | series | source | database",
@@ -126,42 +189,151 @@ def previous_release(out: Path) -> dict[str, pd.DataFrame]:
         con.close()
 
 
+BUILD_PREFIX = ".build-"
+#: Fault-injection hook for the atomicity test: seconds emit sleeps after writing the
+#: tables and before finishing the build (never set in normal use).
+PAUSE_ENV = "THERMOLEDGER_EMIT_PAUSE_S"
+
+
+def _pid_alive(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return True
+    return True
+
+
+def remove_stale_builds(out: Path) -> None:
+    """Remove build folders of runs that died before publishing (their pid is gone)."""
+    for d in out.glob(BUILD_PREFIX + "*"):
+        try:
+            pid = int(d.name.rsplit("-", 1)[1])
+        except (IndexError, ValueError):
+            continue
+        if pid != os.getpid() and not _pid_alive(pid):
+            shutil.rmtree(d, ignore_errors=True)
+
+
 def build_dir(run) -> Path:
-    d = run.out / f".build-{run.run_id}-{os.getpid()}"
+    d = run.out / f"{BUILD_PREFIX}{run.run_id}-{os.getpid()}"
     if d.exists():
         shutil.rmtree(d)
     d.mkdir(parents=True)
     return d
 
 
+def derive(run) -> dict:
+    """Preferred records, refits of tabulated preferred records, ``properties``.
+
+    Stores the results in ``run.extra["derived"]`` and adds ``export.fit-quality``
+    findings to ``run.findings_parts`` (the emit stage collects findings again after).
+    """
+    from .functions import RecordFunctions
+    from .macros import preferred_segments
+    from .preferred import choose_preferred
+    from .properties import curated_properties, element_references
+    from .refit import FIT_TOLERANCES, quality_findings, refit
+
+    f = run.frames
+    records, segments, tp = f["records"], f["segments"], f["table_points"]
+    sources = pd.DataFrame([dict(source_id=s.id, priority=s.priority, kind=s.kind) for s in run.manifest.sources],
+                           columns=["source_id", "priority", "kind"])
+    preferred = choose_preferred(records, sources, run.findings)
+    ctx = run.extra.get("ctx")
+    funcs = ctx.functions if ctx is not None else RecordFunctions(records, segments, tp)
+    # tabulated preferred records → NASA-9 refits (macros and exports then work uniformly)
+    kind = records.set_index("record_id")["kind"] if len(records) else pd.Series(dtype=object)
+    tab = preferred[preferred["preferred_record_id"].map(kind).eq("table").to_numpy()]
+    items = tab.merge(records[["record_id", "source_id", "t_low_k", "t_high_k"]],
+                      left_on="preferred_record_id", right_on="record_id")
+    items = items[items["t_high_k"].astype(float) - np.maximum(items["t_low_k"].astype(float), 200.0) >= 10.0]
+    mid = (items["t_low_k"].to_numpy(float) + items["t_high_k"].to_numpy(float)) / 2
+    h_mid = funcs.evaluate(items["record_id"].to_numpy(dtype=object), mid).h if len(items) else np.empty(0)
+    h_defined = dict(zip(items["record_id"], np.isfinite(h_mid)))  # absolute H known
+    fit = refit(items[["record_id", "t_low_k", "t_high_k"]], table_values(funcs, h_defined), "nasa9")
+    fits = fit.fits.merge(items[["record_id", "species", "source_id"]], on="record_id", how="left")
+    tol = {k: run.config.tol("export.fit-quality", k) for k in FIT_TOLERANCES}
+    run.add_findings(quality_findings(fits, fits["species"], fits["source_id"], tol))
+    fits["h298_basis"] = fits["record_id"].map(
+        lambda r: "table dfh at 298.15 K" if h_defined.get(r) else "unknown (set to 0)")
+    fits = fits[["species"] + [c for c in fits.columns if c not in ("species", "source_id")]]
+    psegs = preferred_segments(preferred, records, segments, fit.segments, h_defined)
+    props = curated_properties(preferred, records, f["species"], funcs, tp)
+    refs = element_references(f["species"])
+    refs = refs[refs["species"].isin(set(preferred.dropna(subset=["preferred_record_id"])["species"]))]
+    derived = dict(preferred=preferred, fits=fits, preferred_segments=psegs, properties=props,
+                   element_references=refs.reset_index(drop=True))
+    run.extra["derived"] = derived
+    return derived
+
+
+def table_values(funcs, h_defined: dict):
+    """Values of table records for :func:`pipeline.refit.refit`: absolute H where the table
+    gives ΔfH at 298.15 K, else H − H(298.15) (the fit then has H(298.15) = 0)."""
+
+    def values(rids, t):
+        rid = np.broadcast_to(np.asarray(rids, dtype=object)[:, None], np.shape(t))
+        v = funcs.evaluate(rid, t)
+        known = np.array([h_defined.get(r, False) for r in np.asarray(rids, dtype=object)])[:, None]
+        return v.cp, np.where(known, v.h, v.h_minus_h298), v.s
+
+    return values
+
+
 def write_release(run) -> None:
-    """Write every curated table into the build folder (DuckDB + Parquet)."""
+    """Write every curated table, the macros and the Parquet copies into the build folder."""
+    from . import macros
+
     run.out.mkdir(parents=True, exist_ok=True)
+    remove_stale_builds(run.out)
     prev = previous_release(run.out)
     run.extra["previous"] = prev
     bdir = run.extra["build_dir"] = build_dir(run)
+    if "derived" not in run.extra:
+        derive(run)
     tables = curated_tables(run, prev)
     con = duckdb.connect(str(bdir / "thermo.duckdb"))
     try:
         for name, df in tables.items():
             write_table(con, name, df)
-        extra_sql = run.extra.get("post_sql") or []
-        for hook in extra_sql:
+        macros.install(con)
+        for hook in run.extra.get("post_sql") or []:
             hook(con, run)
+        pause = float(os.environ.get(PAUSE_ENV, "0") or 0)
+        if pause > 0:
+            time.sleep(pause)
         pq = bdir / "parquet"
         pq.mkdir()
         for name in tables:
             con.execute(f"COPY \"{name}\" TO '{(pq / (name + '.parquet')).as_posix()}' (FORMAT parquet)")
+        con.execute("CHECKPOINT")
     finally:
         con.close()
 
 
+def _sorted(df: pd.DataFrame, keys: list[str] | None = None) -> pd.DataFrame:
+    """Rows in a deterministic order: by ``keys``, then by every other column (text
+    columns compared as text, nulls first)."""
+    if not len(df):
+        return df.reset_index(drop=True)
+    cols = list(dict.fromkeys((keys or []) + list(df.columns)))
+    key = pd.DataFrame({c: (df[c].map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+                            if df[c].dtype == object or str(df[c].dtype) in ("string", "str") else df[c])
+                        for c in cols}, index=df.index)
+    order = key.sort_values(cols, kind="stable", na_position="first").index
+    return df.loc[order].reset_index(drop=True)
+
+
 def curated_tables(run, prev: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame]:
     """The tables of the release, in a fixed order, rows sorted deterministically."""
+    from .macros import MACRO_DOCS
     from .stages import exit_code
 
     f = run.frames
     m = run.manifest
+    d = run.extra.get("derived") or {}
     stats = {s["source_id"]: s for s in run.source_stats}
     sources = pd.DataFrame([dict(
         source_id=s.id, path=s.path, format=s.format, kind=s.kind, priority=s.priority,
@@ -183,22 +355,30 @@ def curated_tables(run, prev: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame
         seconds_json=json.dumps({k: round(v, 4) for k, v in run.seconds.items()}),
         exit_code=exit_code(findings, run.fail_on))])
     runs = pd.concat([prev["runs"], runs_row], ignore_index=True) if "runs" in prev else runs_row
-    species = f["species"].copy()
-    for col in ("preferred_record_id", "preferred_reason"):
-        if col not in species:
-            species[col] = None
+    species = f["species"].drop(columns=["preferred_record_id", "preferred_reason"], errors="ignore")
+    pref = d.get("preferred")
+    if pref is not None and len(pref):
+        species = species.merge(pref, on="species", how="left")
+    else:
+        species = species.assign(preferred_record_id=None, preferred_reason=None)
     tables = {
         "sources": sources,
-        "species": species.sort_values("species"),
-        "records": f["records"].sort_values("record_id"),
-        "segments": f["segments"].sort_values(["record_id", "segment"]),
-        "table_points": f["table_points"].sort_values(["record_id", "t_k"]),
-        "reactions": f["reactions"].sort_values("reaction_id"),
+        "species": _sorted(species, ["species"]),
+        "records": _sorted(f["records"], ["record_id"]),
+        "segments": _sorted(f["segments"], ["record_id", "segment"]),
+        "table_points": _sorted(f["table_points"], ["record_id", "t_k"]),
+        "reactions": _sorted(f["reactions"], ["reaction_id"]),
         "findings": findings,
-        "rejected": f["rejected"].sort_values(["source_id", "file", "line"], na_position="first"),
+        "rejected": _sorted(f["rejected"], ["source_id", "file", "line"]),
         "runs": runs,
     }
-    tables.update(run.extra.get("extra_tables", {}))
+    for name, keys in (("properties", ["species", "t_k"]), ("preferred_segments", ["species", "segment"]),
+                       ("fits", ["species", "record_id"]), ("element_references", ["element", "species"])):
+        if name in d:
+            tables[name] = _sorted(d[name], keys)
+    tables["macros"] = pd.DataFrame(sorted(MACRO_DOCS.items()), columns=["name", "description"])
+    for name, df in (run.extra.get("extra_tables") or {}).items():
+        tables[name] = _sorted(df)
     return {k: v.reset_index(drop=True) for k, v in tables.items()}
 
 
@@ -222,20 +402,75 @@ def _version() -> str:
 
 
 def publish(run) -> None:
-    """Swap the complete build folder's items into ``out`` (each a single rename).
-
-    The old items are first renamed aside, the new ones renamed in, then the old removed,
-    so at every instant each item is either the complete old or the complete new one.
-    """
+    """Swap the complete build folder in as the release, atomically (module docstring)."""
     bdir: Path = run.extra["build_dir"]
-    old = run.out / f".old-{run.run_id}-{os.getpid()}"
+    out: Path = run.out
+    name = bdir.name[len(BUILD_PREFIX):]
+    releases = out / ".releases"
+    releases.mkdir(exist_ok=True)
+    final = releases / name
+    os.replace(bdir, final)
+    _fsync_dir(releases)
+    try:
+        tmp = out / f".current-{name}"
+        if tmp.is_symlink() or tmp.exists():
+            tmp.unlink()
+        os.symlink(os.path.join(".releases", name), tmp)
+    except (OSError, NotImplementedError):
+        _publish_by_item(final, out, name)
+        return
+    os.replace(tmp, out / ".current")  # the atomic switch
+    _fsync_dir(out)
+    for item in RELEASE_ITEMS:
+        link, target = out / item, os.path.join(".current", item)
+        if link.is_symlink() and os.readlink(link) == target:
+            continue
+        tmp = out / f".{item}.link-{name}"
+        os.symlink(target, tmp)
+        if link.exists() and not link.is_symlink():  # a release in the older, plain layout
+            aside = out / f".old-{name}-{item}"
+            os.replace(link, aside)
+            os.replace(tmp, link)
+            shutil.rmtree(aside, ignore_errors=True) if aside.is_dir() else aside.unlink()
+        else:
+            os.replace(tmp, link)
+    _prune_releases(releases, keep={name})
+
+
+def _prune_releases(releases: Path, keep: set[str]) -> None:
+    """Remove old releases, keeping the current and the one before it (a reader that
+    resolved the old link an instant before the switch can still open it)."""
+    dirs = sorted((p for p in releases.iterdir() if p.is_dir()), key=lambda p: p.stat().st_mtime)
+    survivors = {p.name for p in dirs[-2:]} | keep
+    for p in dirs:
+        if p.name not in survivors:
+            shutil.rmtree(p, ignore_errors=True)
+
+
+def _publish_by_item(final: Path, out: Path, name: str) -> None:
+    """Fallback without symbolic links: rename each item in (each wholly old or new)."""
+    old = out / f".old-{name}"
     old.mkdir()
     for item in RELEASE_ITEMS:
-        new, cur = bdir / item, run.out / item
+        new, cur = final / item, out / item
         if not new.exists():
             continue
         if cur.exists():
             os.replace(cur, old / item)
         os.replace(new, cur)
     shutil.rmtree(old, ignore_errors=True)
-    shutil.rmtree(bdir, ignore_errors=True)
+    shutil.rmtree(final, ignore_errors=True)
+
+
+def _fsync_dir(path: Path) -> None:
+    """Make a rename durable (POSIX: fsync the directory)."""
+    try:
+        fd = os.open(path, os.O_RDONLY)
+    except OSError:
+        return
+    try:
+        os.fsync(fd)
+    except OSError:
+        pass
+    finally:
+        os.close(fd)

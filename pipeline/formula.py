@@ -2,7 +2,10 @@
 
 A species key is ``FORMULA(state)`` or ``FORMULA(state,label)`` with the state in IUPAC
 notation (``g``, ``l``, ``cr``, ``aq``). The formula may carry parentheses, multipliers,
-decimal counts and a trailing charge (``OH-``, ``Na+``, ``SO4-2``, ``e-``). Element
+decimal counts, adducts (``CuSO4·5H2O`` or ``CuSO4*5H2O``) and a trailing charge: signs,
+optionally followed by the magnitude (``OH-``, ``Na+``, ``SO4-2``, ``Fe+++``, ``e-``). The
+charge comes *after* the sign: ``Fe+3`` is Fe³⁺, while ``O3-`` is the ozonide ion O₃⁻ (a
+count before the sign belongs to the element, as in NASA-style names). Element
 symbols are validated and atomic weights taken from ``periodictable`` (IUPAC standard
 atomic weights, abridged conventional values), never from a hand table.
 """
@@ -117,6 +120,22 @@ def _parse_formula_cached(text: str) -> tuple[tuple[tuple[str, float], ...], int
         body = body[: m.start()]
     if not body:
         raise FormulaError(text, "empty formula", "write a formula such as H2O")
+    if "·" in body or "*" in body:
+        # adduct: parts joined by '·' (or '*'), each with an optional leading multiplier
+        total: dict[str, float] = {}
+        for part in re.split(r"[·*]", body):
+            m_mult = re.match(r"^\s*(\d+(?:\.\d+)?)?\s*(.*)$", part)
+            mult = float(m_mult.group(1)) if m_mult.group(1) else 1.0
+            rest = m_mult.group(2).strip()
+            if not rest:
+                raise FormulaError(text, "an empty part around '·'", "write adducts as CuSO4·5H2O")
+            if _CHARGE.search(rest):
+                raise FormulaError(text, "a charge inside an adduct part",
+                                   "write the charge once, at the end of the formula")
+            items, _ = _parse_formula_cached(rest)
+            for el, n in items:
+                total[el] = total.get(el, 0.0) + mult * n
+        return tuple(sorted(total.items())), charge
     stack: list[dict] = [{}]
     pos = 0
     last_group: dict | None = None
@@ -173,7 +192,8 @@ def parse_formula(text: str) -> Formula:
 def hill_formula(elements: dict, charge: int = 0) -> str:
     """Hill-order formula string (C, H, then alphabetical), with charge suffix."""
     els = {k: v for k, v in elements.items() if k != ELECTRON}
-    order = (["C", "H"] if "C" in els else []) + sorted(k for k in els if not ("C" in els and k in ("C", "H")))
+    lead = [k for k in ("C", "H") if k in els] if "C" in els else []
+    order = lead + sorted(k for k in els if k not in lead)
 
     def fmt(n: float) -> str:
         return "" if n == 1 else (str(int(n)) if float(n).is_integer() else f"{n:g}")

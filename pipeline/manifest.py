@@ -46,7 +46,15 @@ class Source:
         def bad(found, expected, fix):
             raise InputError(where[0], where[1], found, expected, fix)
 
-        if not _ID.match(self.id or ""):
+        for key in ("id", "path", "format", "kind"):
+            if not isinstance(getattr(self, key), str):
+                bad(f"{key} = {getattr(self, key)!r}", f"{key} as a quoted string", f'write {key} = "…"')
+        for key in ("citation", "license", "energy_unit"):
+            if getattr(self, key) is not None and not isinstance(getattr(self, key), str):
+                bad(f"{key} = {getattr(self, key)!r}", f"{key} as a quoted string", f'write {key} = "…"')
+        if not isinstance(self.nasa7_layout, str):
+            bad(f"nasa7_layout = {self.nasa7_layout!r}", "classic or tm4513", 'write nasa7_layout = "classic"')
+        if not _ID.match(self.id):
             bad(f"id = {self.id!r}", "an id of lower-case letters, digits and '-'", "rename the source")
         if self.format not in FORMATS:
             bad(f"format = {self.format!r}", "one of " + ", ".join(FORMATS), "correct the format")
@@ -64,6 +72,7 @@ class Source:
             bad(f"nasa7_layout on a {self.format} source", "nasa7_layout only on nasa7 sources",
                 "remove nasa7_layout")
         if not (isinstance(self.reference_pressure_bar, (int, float))
+                and not isinstance(self.reference_pressure_bar, bool)
                 and 0 < self.reference_pressure_bar < 1e4):
             bad(f"reference_pressure_bar = {self.reference_pressure_bar!r}",
                 "a positive pressure in bar", "write e.g. 1.0 or 1.01325")
@@ -79,12 +88,20 @@ class Database:
     reference_pressure_bar: float = P_STD_BAR
     reference_temperature_k: float = T_REF
 
+    line: int = 0          # line of the [database] header in the manifest
+
     def __post_init__(self):
-        if not (isinstance(self.reference_pressure_bar, (int, float)) and self.reference_pressure_bar > 0):
-            raise InputError("sources.toml", None, f"reference_pressure_bar = {self.reference_pressure_bar!r}",
+        if not isinstance(self.name, str):
+            raise InputError("sources.toml", self.line or None, f"name = {self.name!r}",
+                             "the database name as a quoted string", 'write name = "…"')
+        if not (isinstance(self.reference_pressure_bar, (int, float))
+                and not isinstance(self.reference_pressure_bar, bool)
+                and 0 < self.reference_pressure_bar < 1e4):
+            raise InputError("sources.toml", self.line or None,
+                             f"reference_pressure_bar = {self.reference_pressure_bar!r}",
                              "a positive pressure in bar", "write e.g. 1.0")
         if self.reference_temperature_k != T_REF:
-            raise InputError("sources.toml", None,
+            raise InputError("sources.toml", self.line or None,
                              f"reference_temperature_k = {self.reference_temperature_k!r}",
                              "298.15 (the only reference temperature thermoledger supports)",
                              "set reference_temperature_k = 298.15")
@@ -102,8 +119,31 @@ class Manifest:
         return self.root / source.path
 
 
+_SOURCE_HEADER = re.compile(r"^\s*\[\[\s*source\s*\]\]")
+_ANY_HEADER = re.compile(r"^\s*\[")
+
+
 def _header_lines(text: str) -> list[int]:
-    return [i + 1 for i, line in enumerate(text.splitlines()) if line.strip().startswith("[[source]]")]
+    return [i + 1 for i, line in enumerate(text.splitlines()) if _SOURCE_HEADER.match(line)]
+
+
+def _key_line(text: str, start: int, key: str) -> int | None:
+    """Line of ``key = …`` in the table that starts on line ``start`` (None if not found)."""
+    lines = text.splitlines()
+    pat = re.compile(r"^\s*[\"']?" + re.escape(str(key)) + r"[\"']?\s*=")
+    for i in range(max(start, 1), len(lines) + 1):
+        if i > start and _ANY_HEADER.match(lines[i - 1]):
+            break
+        if pat.match(lines[i - 1]):
+            return i
+    return start or None
+
+
+def _table_line(text: str, name: str) -> int:
+    for i, line in enumerate(text.splitlines()):
+        if re.match(r"^\s*\[\s*" + name + r"\s*\]", line):
+            return i + 1
+    return 0
 
 
 def load_manifest(raw: Path) -> Manifest:
@@ -120,7 +160,12 @@ def load_manifest(raw: Path) -> Manifest:
     if not mpath.is_file():
         raise InputError(str(mpath), None, "no manifest", "a sources.toml in the raw folder",
                          "create raw/sources.toml (see docs: the manifest) or pass --raw")
-    text = mpath.read_text(encoding="utf-8")
+    try:
+        text = mpath.read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        line = mpath.read_bytes()[:exc.start].count(b"\n") + 1
+        raise InputError("sources.toml", line, "bytes that are not UTF-8", "a UTF-8 text file",
+                         "save the manifest as UTF-8") from None
     try:
         doc = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -132,11 +177,16 @@ def load_manifest(raw: Path) -> Manifest:
         raise InputError("sources.toml", None, f"unknown table(s) {sorted(unknown_top)}",
                          "only [database] and [[source]]", "remove or rename them")
     db_doc = doc.get("database", {})
-    unknown = set(db_doc) - _DATABASE_KEYS
+    db_line = _table_line(text, "database")
+    if not isinstance(db_doc, dict):
+        raise InputError("sources.toml", db_line or None, "database that is not a table",
+                         "a [database] table", "write [database] on its own line, then its keys")
+    unknown = sorted(set(db_doc) - _DATABASE_KEYS)
     if unknown:
-        raise InputError("sources.toml", None, f"unknown key(s) {sorted(unknown)} in [database]",
+        raise InputError("sources.toml", _key_line(text, db_line, unknown[0]),
+                         f"unknown key(s) {unknown} in [database]",
                          "one of " + ", ".join(sorted(_DATABASE_KEYS)), "correct the spelling")
-    database = Database(**db_doc)
+    database = Database(line=db_line, **db_doc)
     lines = _header_lines(text)
     sources: list[Source] = []
     seen: dict[str, int] = {}
@@ -146,9 +196,13 @@ def load_manifest(raw: Path) -> Manifest:
                          "write each source as [[source]]")
     for i, entry in enumerate(entries):
         line = lines[i] if i < len(lines) else 0
-        unknown = set(entry) - _SOURCE_KEYS
+        if not isinstance(entry, dict):
+            raise InputError("sources.toml", line or None, f"source entry {entry!r}",
+                             "[[source]] tables", "write each source as a [[source]] table")
+        unknown = sorted(set(entry) - _SOURCE_KEYS)
         if unknown:
-            raise InputError("sources.toml", line, f"unknown key(s) {sorted(unknown)}",
+            raise InputError("sources.toml", _key_line(text, line, unknown[0]),
+                             f"unknown key(s) {unknown} in [[source]]",
                              "one of " + ", ".join(sorted(_SOURCE_KEYS)), "correct the spelling or remove the key")
         for req in ("id", "path", "format"):
             if req not in entry:
@@ -156,17 +210,27 @@ def load_manifest(raw: Path) -> Manifest:
                                  "id, path and format in every source", f"add {req} = \"…\"")
         kw = dict(entry)
         kw.setdefault("reference_pressure_bar", database.reference_pressure_bar)
-        src = Source(line=line, **kw)
+        try:
+            src = Source(line=line, **kw)
+        except InputError as exc:        # point at the offending key's own line
+            key = exc.found.split(" ")[0]
+            if key in entry:
+                exc.line = _key_line(text, line, key)
+            raise
         if src.id in seen:
-            raise InputError("sources.toml", line, f"duplicate id {src.id!r} (first on line {seen[src.id]})",
+            raise InputError("sources.toml", _key_line(text, line, "id"),
+                             f"duplicate id {src.id!r} (first on line {seen[src.id]})",
                              "unique source ids", "rename one of them")
         seen[src.id] = line
         target = (raw / src.path).resolve()
-        if not target.is_relative_to(raw.resolve()):
-            raise InputError("sources.toml", line, f"path {src.path!r} outside the raw folder",
-                             "a path inside the manifest's folder", "move the file into raw/")
+        pline = _key_line(text, line, "path")
+        if Path(src.path).is_absolute() or not target.is_relative_to(raw.resolve()):
+            raise InputError("sources.toml", pline, f"path {src.path!r} outside the raw folder",
+                             "a path relative to the manifest that stays inside its folder",
+                             "move the file into the raw folder and give its relative path")
         if not target.is_file():
-            raise InputError("sources.toml", line, f"path {src.path!r} that does not exist",
+            raise InputError("sources.toml", pline, f"path {src.path!r} that does not exist"
+                             + (" (a folder)" if target.is_dir() else ""),
                              "an existing file", "correct the path or add the file")
         sources.append(src)
     return Manifest(root=raw, database=database, sources=tuple(sources))

@@ -35,7 +35,8 @@ class Run:
     config: Config = field(default_factory=Config)
     waivers: Path | None = None
     fail_on: str = "error"
-    progress: Callable[[str], None] = lambda msg: None
+    #: ``progress(msg, done=None, total=None, stage=None)``; see ``cli/progress.py``
+    progress: Callable[..., None] = lambda msg, done=None, total=None, stage=None: None
     manifest: Manifest | None = None
     frames: dict[str, pd.DataFrame] = field(default_factory=dict)
     findings_parts: list[pd.DataFrame] = field(default_factory=list)
@@ -75,13 +76,13 @@ def stage_ingest(run: Run) -> None:
 
     run.manifest = m = load_manifest(run.raw)
     results: dict[str, ib.ReadResult] = {}
-    for src in m.sources:
+    for i, src in enumerate(m.sources):
         reader = READERS.get(src.format)
         if reader is None:
             raise InputError("sources.toml", src.line, f"format {src.format!r}",
                              "a format this version reads: " + ", ".join(sorted(READERS)),
                              "upgrade thermoledger or convert the file")
-        run.progress(f"reading {src.path}")
+        run.progress(f"reading {src.path}", i, len(m.sources))
         results[src.id] = reader(m.path_of(src), src, src.path)
     frames = {}
     for name, cols in (("records", ib.RECORD_COLUMNS), ("segments", ib.SEGMENT_COLUMNS),
@@ -124,25 +125,45 @@ def _reaction_species(reactions: pd.DataFrame) -> list[str]:
 
 
 def _reject_records(run: Run, recs: pd.DataFrame, reasons: list[str]) -> None:
-    """Move whole records (and their segments/table points) to ``rejected``."""
+    """Move whole records (and their segments/table points) to ``rejected``.
+
+    Each input record is rejected as its reader counted it (accounting identity): a table's
+    rows and a Shomate record's rows (one per segment) one by one, any other record once.
+    ``raw_text`` is read back verbatim from the raw file.
+    """
     ids = set(recs["record_id"])
-    rows = pd.DataFrame({"source_id": recs["source_id"].to_numpy(), "file": recs["file"].to_numpy(),
-                         "line": recs["line"].to_numpy(),
-                         "raw_text": [f"record {n}" for n in recs["name"]], "reason": reasons})
-    # a table record's input records are its rows: reject each row
-    tp = run.frames["table_points"]
-    in_tp = tp["record_id"].isin(ids)
-    if in_tp.any():
-        t = tp[in_tp].merge(recs[["record_id", "file"]], on="record_id")
-        reason_of = dict(zip(recs["record_id"], reasons))
-        rows = pd.concat([rows[~recs["kind"].eq("table").to_numpy()], pd.DataFrame({
-            "source_id": t["source_id"], "file": t["file"], "line": t["line"],
-            "raw_text": [f"table row of {r}" for r in t["record_id"]],
-            "reason": [reason_of[r] for r in t["record_id"]]})], ignore_index=True)
-        run.frames["table_points"] = tp[~in_tp].reset_index(drop=True)
-    run.reject(rows)
+    reason_of = dict(zip(recs["record_id"], reasons))
+    root = run.manifest.root if run.manifest is not None else run.raw
+    cache: dict = {}
     seg = run.frames["segments"]
-    run.frames["segments"] = seg[~seg["record_id"].isin(ids)].reset_index(drop=True)
+    tp = run.frames["table_points"]
+    in_seg = seg["record_id"].isin(ids)
+    in_tp = tp["record_id"].isin(ids)
+    n_seg = seg[in_seg].groupby("record_id").size()
+    per_row = (recs["kind"].eq("table") | recs["form"].eq("shomate")).to_numpy()
+    whole = recs[~per_row]
+    parts = [pd.DataFrame({
+        "source_id": whole["source_id"].to_numpy(), "file": whole["file"].to_numpy(),
+        "line": whole["line"].to_numpy(),
+        "raw_text": [ib.read_back(root, f, ln, ib.record_lines(fm, int(n_seg.get(r, 0))), cache)
+                     or f"record {nm}" for f, ln, fm, r, nm in
+                     zip(whole["file"], whole["line"], whole["form"], whole["record_id"], whole["name"])],
+        "reason": [reason_of[r] for r in whole["record_id"]]})]
+    file_of = dict(zip(recs["record_id"], recs["file"]))
+    source_of = dict(zip(recs["record_id"], recs["source_id"]))
+    shomate_ids = set(recs.loc[recs["form"].eq("shomate"), "record_id"])
+    for rows_of in (tp[in_tp], seg[in_seg & seg["record_id"].isin(shomate_ids)]):
+        if len(rows_of):
+            parts.append(pd.DataFrame({
+                "source_id": rows_of["record_id"].map(source_of).to_numpy(),
+                "file": rows_of["record_id"].map(file_of).to_numpy(),
+                "line": rows_of["line"].to_numpy(),
+                "raw_text": [ib.read_back(root, file_of[r], ln, 1, cache) or f"row of {r}"
+                             for r, ln in zip(rows_of["record_id"], rows_of["line"])],
+                "reason": [reason_of[r] for r in rows_of["record_id"]]}))
+    run.reject(pd.concat(parts, ignore_index=True))
+    run.frames["table_points"] = tp[~in_tp].reset_index(drop=True)
+    run.frames["segments"] = seg[~in_seg].reset_index(drop=True)
 
 
 # ---------------------------------------------------------------------------- validate
@@ -195,12 +216,15 @@ def stage_check(run: Run) -> None:
     f = run.frames
     ctx = CheckContext(species=f["species"], records=f["records"], segments=f["segments"],
                        table_points=f["table_points"], reactions=f["reactions"],
-                       config=run.config, p_db_bar=run.p_db_bar)
+                       config=run.config, p_db_bar=run.p_db_bar,
+                       sources=pd.DataFrame([dict(source_id=s.id, priority=s.priority, kind=s.kind)
+                                             for s in run.manifest.sources],
+                                            columns=["source_id", "priority", "kind"]))
     run.extra["ctx"] = ctx
-    for spec in registry.runnable("check"):
-        if spec.id in run.config.disabled:
-            continue
-        run.progress(f"check {spec.id}")
+    specs = [s for s in registry.runnable("check") if s.id not in run.config.disabled]
+    for i, spec in enumerate(specs):
+        run.progress(f"check {spec.id}", i, len(specs))
+        run.extra.setdefault("checks_ran", []).append(spec.id)
         run.add_findings(_safe(spec, ctx))
 
 
@@ -224,34 +248,40 @@ def stage_reconcile(run: Run) -> None:
     ctx = run.extra["ctx"]
     ctx.prior_findings = (pd.concat(run.findings_parts, ignore_index=True)
                           if run.findings_parts else empty_findings())
-    for spec in registry.runnable("network"):
-        if spec.id in run.config.disabled:
-            continue
-        run.progress(f"check {spec.id}")
+    specs = [s for s in registry.runnable("network") if s.id not in run.config.disabled]
+    for i, spec in enumerate(specs):
+        run.progress(f"check {spec.id}", i, len(specs))
+        run.extra.setdefault("checks_ran", []).append(spec.id)
         run.add_findings(_safe(spec, ctx))
 
 
 # -------------------------------------------------------------------------------- emit
 
 def collect_findings(run: Run) -> pd.DataFrame:
-    """All findings in a fixed order with fingerprints (waivers/history added by emit)."""
+    """All findings in a fixed order, waivers applied (``--waivers``), with fingerprints
+    (``first_seen_run`` is carried from the previous release by ``curate``)."""
+    from .waivers import apply_waivers, load_waivers
+
     parts = [p for p in run.findings_parts if len(p)]
     df = pd.concat(parts, ignore_index=True) if parts else empty_findings()
+    # waived findings stay, marked; expired or stale waivers become findings themselves
+    df = apply_waivers(df, load_waivers(run.waivers), today=run.extra.get("today"))
     sev_rank = df["severity"].map({"error": 0, "warning": 1, "info": 2})
-    df = (df.assign(_r=sev_rank).sort_values(["_r", "check_id", "subject", "source_id", "t_k"],
+    # the full key (message too) makes the order independent of the order of the inputs
+    df = (df.assign(_r=sev_rank).sort_values(["_r", "check_id", "subject", "source_id", "t_k", "message"],
                                              kind="stable", na_position="first")
           .drop(columns="_r").reset_index(drop=True))
-    df["waived"] = False
-    df["waiver_reason"] = None
     df["fingerprint"] = fingerprint(df) if len(df) else pd.Series(dtype=object)
     df["first_seen_run"] = run.run_id
     return df[list(FINDING_COLUMNS)]
 
 
 def stage_emit(run: Run) -> None:
-    """Write the curated release (DuckDB, Parquet) atomically."""
-    from .curate import write_release
+    """Preferred records, refits and properties; then the curated release (DuckDB, Parquet)."""
+    from .curate import derive, write_release
 
+    run.findings = collect_findings(run)
+    derive(run)  # chooses preferred records from these findings; adds export.fit-quality ones
     run.findings = collect_findings(run)
     ctx = run.extra.get("ctx")
     if ctx is not None:
@@ -281,6 +311,7 @@ def execute(run: Run) -> Run:
     run.started = datetime.now(timezone.utc).isoformat(timespec="seconds")
     run.run_id = run.started.replace(":", "").replace("-", "").replace("+0000", "Z")
     for name, fn in STAGES:
+        run.progress(name, stage=name)
         t0 = time.perf_counter()
         fn(run)
         run.seconds[name] = time.perf_counter() - t0

@@ -32,6 +32,8 @@ class CheckContext:
     tables_out: dict = field(default_factory=dict)
     #: Findings of earlier checks (network checks may read the per-record ones).
     prior_findings: pd.DataFrame | None = None
+    #: Manifest sources (``source_id, priority, kind``) for the preferred-record rule; None: all priority 0.
+    sources: pd.DataFrame | None = None
 
     def tol(self, check_id: str, name: str) -> float:
         return self.config.tol(check_id, name)

@@ -89,3 +89,44 @@ def segment_discontinuity(ctx: CheckContext) -> pd.DataFrame:
                          hint=["ranges fitted separately without joint constraints, or a "
                                "mistyped coefficient" if abs(gap[r]) <= 1e-6 else
                                "the stated ranges do not meet" for r in rows])
+
+
+@check("segment.kink", tolerances={"slope_rel": 0.10, "slope_abs_j_mol_k2": 1.0e-3})
+def segment_kink(ctx: CheckContext) -> pd.DataFrame:
+    """The slope dCp/dT should not jump where two segments of one record meet.
+
+    Relation: Cp(T) of a real substance within one phase is smooth, so at a joint T_j the
+    two segments should share dCp/dT as well as Cp; a jump in slope is a kink that shows as
+    a spike in derived quantities (e.g. the temperature derivative of Cp used by solvers)
+    and usually means the segments were fitted without a slope constraint at the joint.
+    Tolerance: warning when |dCp/dT_hi − dCp/dT_lo| exceeds both 10 % of the larger
+    |dCp/dT| and 1e-3 J/(mol·K²) (the absolute floor keeps flat, nearly constant Cp from
+    tripping the relative test); common practice. Derivatives from the canonical evaluator
+    (``thermo.evaluate``, exact for the polynomial).
+    """
+    cid = "segment.kink"
+    j = joints(ctx)
+    if len(j) == 0:
+        return empty_findings()
+    t = j["t_joint"].to_numpy(float)
+    d_lo = evaluate(np.stack(j["coef_lo"].to_numpy()), t).dcp_dt
+    d_hi = evaluate(np.stack(j["coef_hi"].to_numpy()), t).dcp_dt
+    jump = np.abs(d_hi - d_lo)
+    scale = np.maximum(np.abs(d_lo), np.abs(d_hi))
+    rel, floor = ctx.tol(cid, "slope_rel"), ctx.tol(cid, "slope_abs_j_mol_k2")
+    tol = np.maximum(rel * scale, floor)
+    keep = np.flatnonzero(jump > tol)
+    if len(keep) == 0:
+        return empty_findings()
+    sel = j.iloc[keep]
+    flip = np.sign(d_lo[keep]) * np.sign(d_hi[keep]) < 0
+    msgs = [f"dCp/dT jumps from {a:.3g} to {b:.3g} J/(mol·K²) at the {tj:g} K joint "
+            f"({100 * q:.0f} % of the larger slope)"
+            for a, b, tj, q in zip(d_lo[keep], d_hi[keep], t[keep], jump[keep] / np.maximum(scale[keep], 1e-300))]
+    hint = np.where(flip, "the slope changes sign at the joint: the segments were fitted separately "
+                          "and one bends away near its end",
+                    "the segments were fitted without a slope constraint at the joint")
+    return make_findings(check_id=cid, severity="warning", subject=sel["species"],
+                         subject_kind="species", source_id=sel["source_id"], t_k=t[keep],
+                         observed=jump[keep], expected=0.0, tolerance=tol[keep],
+                         unit="J/(mol*K^2)", message=msgs, hint=hint)

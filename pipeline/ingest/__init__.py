@@ -5,11 +5,15 @@ implemented are absent from ``READERS``; the ingest stage refuses them with a cl
 """
 from __future__ import annotations
 
-from . import nasa7, species_csv
+from . import nasa7, nasa9, reactions_csv, shomate_csv, species_csv, table_csv
 
 READERS = {
     "nasa7": nasa7.read,
+    "nasa9": nasa9.read,
+    "shomate-csv": shomate_csv.read,
+    "table-csv": table_csv.read,
     "species-csv": species_csv.read,
+    "reactions-csv": reactions_csv.read,
 }
 
 #: Which staging frame holds a format's accepted records (for the accounting identity).

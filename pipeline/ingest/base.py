@@ -7,8 +7,11 @@ give each record its ``name`` as written, the ``state``/``label`` the record imp
 where the format states them, its element counts. :mod:`pipeline.ingest.resolve` then
 assigns keys.
 
-Accounting: ``n_read`` counts the file's records (a nasa7 record is four lines, a CSV
-record is one row); ``n_read == accepted + len(rejected)`` must hold for every reader.
+Accounting: ``n_read`` counts the file's input records (a nasa7 or nasa9 record is one
+species' block of lines, a CSV record is one row — so a Shomate species with three ranges
+is three input records, one per segment); ``n_read == accepted + len(rejected)`` must hold
+for every reader, with "accepted" counted in the format's primary frame
+(``pipeline.ingest.PRIMARY_FRAME``).
 """
 from __future__ import annotations
 
@@ -29,7 +32,9 @@ RECORD_COLUMNS = (
     "stated_molar_mass_g_mol",
     "date_code",
 )
-SEGMENT_COLUMNS = ("record_id", "segment", "t_low_k", "t_high_k") + COEF_COLUMNS
+#: ``line``: the segment's first line in the raw file (a Shomate row is its own input
+#: record, so a rejected Shomate record is accounted for row by row).
+SEGMENT_COLUMNS = ("record_id", "segment", "t_low_k", "t_high_k") + COEF_COLUMNS + ("line",)
 TABLE_QUANTITIES = ("cp", "s", "gef", "h_minus_href", "dfh", "dfg", "log_kf")
 #: SI column name of each table quantity.
 TABLE_SI = {
@@ -84,3 +89,26 @@ class ReadResult:
 def rejected_row(source_id: str, file: str, line: int | None, raw_text: str, reason: str) -> dict:
     return {"source_id": source_id, "file": file, "line": line,
             "raw_text": raw_text[:2000], "reason": reason}
+
+
+def record_lines(form: str, n_segments: int) -> int:
+    """Lines one input record of ``form`` occupies in its raw file (for reading it back)."""
+    return {"nasa7": 4, "nasa9": 2 + 3 * max(n_segments, 0)}.get(form, 1)
+
+
+def read_back(root, file: str, line, n_lines: int, cache: dict) -> str:
+    """The verbatim text of lines ``line`` .. ``line + n_lines − 1`` of ``root/file``
+    (``cache`` maps a path to its lines, so each file is read once); '' if unreadable."""
+    from pathlib import Path
+
+    path = Path(root) / str(file)
+    if path not in cache:
+        try:
+            cache[path] = path.read_bytes().decode("utf-8", errors="replace").splitlines()
+        except OSError:
+            cache[path] = []
+    try:
+        start = int(line) - 1
+    except (TypeError, ValueError):
+        return ""
+    return "\n".join(cache[path][max(start, 0):start + n_lines])

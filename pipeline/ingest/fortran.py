@@ -36,7 +36,8 @@ def element_pairs(text: str, width_sym: int, width_num: int, n: int, what="formu
     """Parse up to ``n`` symbol+count pairs from fixed columns into {symbol: count}.
 
     Symbols are read case-insensitively (``CL`` → ``Cl``); ``E`` is the electron
-    (count = −charge). A blank pair or a zero count is skipped.
+    (count = −charge). A blank pair, a zero count, or a blank symbol with a zero count
+    (how NASA-9 files fill unused pairs) is skipped.
     """
     out: dict[str, float] = {}
     step = width_sym + width_num
@@ -47,6 +48,12 @@ def element_pairs(text: str, width_sym: int, width_num: int, n: int, what="formu
         if not sym and not num:
             continue
         if not sym:
+            # unused pairs are often written as a blank symbol with a zero count ("    0.00")
+            try:
+                if float(num.replace("D", "E").replace("d", "e")) == 0.0:
+                    continue
+            except ValueError:
+                pass
             raise RecordError(f"{what}: count {num!r} without an element symbol")
         try:
             count = float(num.replace("D", "E")) if num else 0.0

@@ -174,7 +174,7 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
                                                (rec["t_mid"], rec["t_high"], rec["upper"]))):
             coef = from_nasa7(np.array(c))
             segments.append(dict(record_id=rid, segment=seg, t_low_k=lo_t, t_high_k=hi_t,
-                                 **dict(zip(COEF_COLUMNS, coef))))
+                                 **dict(zip(COEF_COLUMNS, coef)), line=start + 1))
     return ReadResult(n_read=n_read, records=frame(records, RECORD_COLUMNS),
                       segments=frame(segments, SEGMENT_COLUMNS),
                       rejected=frame(rejected, REJECTED_COLUMNS))

@@ -32,13 +32,31 @@ def alias_map(species_meta: pd.DataFrame) -> dict[str, str]:
     return out
 
 
+def _split_comma_label(name: str) -> tuple[str, str | None]:
+    """``C3H6,propylene`` → (``C3H6``, ``propylene``): an isomer label after the first comma
+    outside parentheses, as NASA-style names write it. No comma → (name, None)."""
+    depth = 0
+    for i, ch in enumerate(name):
+        depth += (ch == "(") - (ch == ")")
+        if ch == "," and depth == 0:
+            label = name[i + 1:].strip()
+            return name[:i].strip(), (label or None)
+    return name, None
+
+
 def build_key(name: str, state: str, label: str | None, elements: dict, charge: int) -> tuple[str, bool]:
     """Key from a record's own name, state and element counts.
+
+    ``C3H6,propylene`` (an isomer label after a comma) → ``C3H6(g,propylene)``;
+    ``Al2O3(a)`` with state ``cr`` → ``Al2O3(cr,a)``; ``H2O(L)`` → ``H2O(l)``.
 
     Returns ``(key, recased)``; ``recased`` is False when no casing of the name matched the
     element counts and the name was kept as written.
     """
     base = name.strip()
+    base, comma_label = _split_comma_label(base)
+    if label is None and comma_label:
+        label = comma_label
     m = _SUFFIX.match(base)
     if m:
         base = m.group("base")

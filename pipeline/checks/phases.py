@@ -1,0 +1,352 @@
+"""Phase checks: forms of one composition (phases, polymorphs, isomers) and of one element.
+
+At fixed T and p the stable form of a composition is the one of lowest Gibbs energy
+(Gibbs, "On the equilibrium of heterogeneous substances", 1876; any textbook, e.g.
+Callen, *Thermodynamics*, 2nd ed., 1985, ch. 9). Every species is evaluated on its
+preferred record (:func:`pipeline.functions.preferred_record_ids`), only inside that
+record's range (no extrapolation).
+"""
+from __future__ import annotations
+
+import json
+
+import numpy as np
+import pandas as pd
+
+from ..constants import T_REF
+from ..findings import empty_findings, make_findings
+from ..functions import preferred_record_ids
+from .context import CheckContext
+from .registry import check
+
+#: Grid spacing for comparing or root-finding G curves [K]. ΔG between two forms is smooth
+#: (dΔG/dT = −ΔS, and ΔS changes slowly away from a transition), so 10 K brackets every
+#: crossing of curves that are not nearly tangent; bisection then refines it to 1e-6 K.
+GRID_K = 10.0
+
+
+def species_forms(ctx: CheckContext) -> pd.DataFrame:
+    """Species with their preferred record and its range, reference flag, element info.
+
+    Columns: ``species, composition, state, charge, reference_element, record_id,
+    source_id, kind, t_low_k, t_high_k, element`` (the element of a one-element species,
+    else None) and ``k`` (its atoms per formula unit).
+    """
+    sp = ctx.species.copy()
+    pref = preferred_record_ids(ctx.records, getattr(ctx, "sources", None))
+    sp["record_id"] = sp["species"].map(pref)
+    sp = sp.dropna(subset=["record_id"])
+    rec = ctx.records.drop_duplicates("record_id").set_index("record_id")
+    for c in ("source_id", "kind", "t_low_k", "t_high_k"):
+        sp[c] = sp["record_id"].map(rec[c])
+    el = sp["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
+    one = (el.map(len) == 1) & (sp["charge"].fillna(0) == 0)
+    sp["element"] = np.where(one, el.map(lambda d: next(iter(d)) if len(d) == 1 else None), None)
+    sp["k"] = np.where(one, el.map(lambda d: float(next(iter(d.values()))) if len(d) == 1 else np.nan), np.nan)
+    sp["reference_element"] = sp["reference_element"].fillna(False).astype(bool)
+    return sp.reset_index(drop=True)
+
+
+def species_values(ctx: CheckContext, forms: pd.DataFrame, idx: np.ndarray, t_k: np.ndarray):
+    """Cp, H, S, G of ``forms.iloc[idx]`` at ``t_k`` (broadcast), NaN outside each record's
+    range. A declared reference form whose table gives no ΔfH takes H(298.15) = 0, its
+    definition."""
+    idx, t = np.broadcast_arrays(np.asarray(idx), np.asarray(t_k, float))
+    f = forms.iloc[idx.ravel()]
+    tt = t.ravel()
+    v = ctx.functions.evaluate(f["record_id"].to_numpy(object), tt)
+    inside = (tt >= f["t_low_k"].to_numpy(float) - 1e-6) & (tt <= f["t_high_k"].to_numpy(float) + 1e-6)
+    h = np.where(np.isnan(v.h) & f["reference_element"].to_numpy(bool), v.h_minus_h298, v.h)
+    nan = np.where(inside, 1.0, np.nan)
+    s = v.s * nan
+    h = h * nan
+    return (v.cp * nan).reshape(t.shape), h.reshape(t.shape), s.reshape(t.shape), (h - tt * s).reshape(t.shape)
+
+
+@check("phase.reference-not-stable", tolerances={"g_j_mol": 10.0})
+def phase_reference_not_stable(ctx: CheckContext) -> pd.DataFrame:
+    """An element's declared reference form should be its most stable form at 298.15 K.
+
+    Relation: among every form of the element whose range includes 298.15 K — phases,
+    polymorphs and molecules (O, O2, O3) — the reference has the lowest G per atom,
+    G/k with k atoms per formula unit (the standard reference state is the stable form
+    at 298.15 K and 1 bar: Cox, Wagman & Medvedev, *CODATA Key Values for
+    Thermodynamics*, 1989). Conventional exceptions exist (white phosphorus) and are
+    waived with their reason.
+    Tolerance: warning when another form is lower by more than 10 J/mol per atom (the
+    reference's own H(298.15) may be 10 J/mol off zero before ``formation.reference-element``
+    calls it an error; common practice).
+    """
+    cid = "phase.reference-not-stable"
+    forms = species_forms(ctx)
+    forms = forms[forms["element"].notna()].reset_index(drop=True)
+    if not len(forms) or not forms["reference_element"].any():
+        return empty_findings()
+    _, _, _, g = species_values(ctx, forms, np.arange(len(forms)), T_REF)
+    forms = forms.assign(g_atom=g / forms["k"].to_numpy(float)).dropna(subset=["g_atom"])
+    refs = forms[forms["reference_element"]]
+    best = forms.sort_values(["element", "g_atom", "species"]).groupby("element").head(1).set_index("element")
+    r = refs.assign(best=refs["element"].map(best["species"]), g_best=refs["element"].map(best["g_atom"]))
+    tol = ctx.tol(cid, "g_j_mol")
+    bad = r[(r["g_best"] < r["g_atom"] - tol) & (r["best"] != r["species"])]
+    if not len(bad):
+        return empty_findings()
+    return make_findings(
+        check_id=cid, severity="warning", subject=bad["species"], subject_kind="species",
+        source_id=bad["source_id"], t_k=T_REF, observed=bad["g_atom"], expected=bad["g_best"],
+        tolerance=tol, unit="J/mol",
+        message=[f"{r.species} is declared the reference of {r.element}, but {r.best} has a lower G per atom "
+                 f"at 298.15 K by {(r.g_atom - r.g_best) / 1e3:.3f} kJ/mol"
+                 for r in bad.itertuples(index=False)],
+        hint="the wrong form is flagged reference_element, the more stable form's ΔfH or S is wrong, "
+             "or this is a conventional reference (waive it with the reason)")
+
+
+def _grid(lo: np.ndarray, hi: np.ndarray, spacing: float, extra: np.ndarray | None = None) -> pd.DataFrame:
+    """Uniform grid per interval [lo, hi] (≥ 16 points, ≤ ``spacing`` apart) plus optional
+    extra points inside; columns ``i, t_k`` sorted."""
+    width = hi - lo
+    n = np.maximum(16, np.ceil(width / spacing).astype(int) + 1)
+    i = np.repeat(np.arange(len(lo)), n)
+    k = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n)
+    t = np.repeat(lo, n) + np.repeat(width, n) * k / np.repeat(n - 1, n)
+    g = pd.DataFrame({"i": i, "t_k": t})
+    if extra is not None:
+        x = pd.DataFrame({"i": np.arange(len(lo)), "t_k": extra})
+        g = pd.concat([g, x[(x["t_k"] > lo) & (x["t_k"] < hi)]], ignore_index=True)
+    return g.drop_duplicates().sort_values(["i", "t_k"], kind="stable").reset_index(drop=True)
+
+
+@check("phase.metastable")
+def phase_metastable(ctx: CheckContext) -> pd.DataFrame:
+    """A form whose G lies above another form of the same composition over its whole range.
+
+    Relation: G_a(T) > G_b(T) at every T of a's range, with b defined over all of it
+    (same composition: same element counts and charge; species differing only in label
+    are such forms), so a is metastable with respect to b there; the smallest margin
+    min(G_a − G_b) and where it occurs are reported (e.g. diamond above graphite by about
+    2.9 kJ/mol at 298.15 K and 1 bar: Chase, *NIST-JANAF Thermochemical Tables*, 4th ed.,
+    1998). Compared on a grid ≤ 10 K apart.
+    Tolerance: none — info, context for the curator (metastable phases are legitimate data).
+    """
+    cid = "phase.metastable"
+    forms = species_forms(ctx)
+    multi = forms.groupby("composition")["species"].transform("size") >= 2
+    forms = forms[multi].reset_index(drop=True)
+    if not len(forms):
+        return empty_findings()
+    fi = forms.assign(pos=np.arange(len(forms)))
+    pairs = fi.merge(fi, on="composition", suffixes=("_a", "_b"))
+    pairs = pairs[pairs["species_a"] != pairs["species_b"]]
+    lo = np.maximum(pairs["t_low_k_a"].to_numpy(float), pairs["t_low_k_b"].to_numpy(float))
+    hi = np.minimum(pairs["t_high_k_a"].to_numpy(float), pairs["t_high_k_b"].to_numpy(float))
+    covers = (lo <= pairs["t_low_k_a"].to_numpy(float) + 1e-6) & (hi >= pairs["t_high_k_a"].to_numpy(float) - 1e-6)
+    pairs = pairs[covers & (hi > lo)].reset_index(drop=True)
+    if not len(pairs):
+        return empty_findings()
+    grid = _grid(pairs["t_low_k_a"].to_numpy(float), pairs["t_high_k_a"].to_numpy(float), GRID_K)
+    i = grid["i"].to_numpy()
+    t = grid["t_k"].to_numpy(float)
+    ga = species_values(ctx, forms, pairs["pos_a"].to_numpy()[i], t)[3]
+    gb = species_values(ctx, forms, pairs["pos_b"].to_numpy()[i], t)[3]
+    d = pd.DataFrame({"i": i, "t_k": t, "dg": ga - gb})
+    valid = d.groupby("i")["dg"].agg(lambda x: x.notna().all())
+    at_min = d.loc[d["dg"].fillna(-np.inf).groupby(d["i"]).idxmin()].set_index("i")
+    ok = valid & (at_min["dg"] > 0)
+    sel = at_min[ok.reindex(at_min.index, fill_value=False)]
+    if not len(sel):
+        return empty_findings()
+    p = pairs.iloc[sel.index.to_numpy()]
+    return make_findings(
+        check_id=cid, severity="info", subject=p["species_a"], subject_kind="species",
+        source_id=p["source_id_a"], t_k=sel["t_k"], observed=sel["dg"], expected=0.0, tolerance=0.0,
+        unit="J/mol",
+        message=[f"{a} lies above {b} in G over its whole range {lo:g}–{hi:g} K, by at least "
+                 f"{m / 1e3:.3f} kJ/mol (at {tm:g} K): metastable"
+                 for a, b, lo, hi, m, tm in zip(p["species_a"], p["species_b"], p["t_low_k_a"], p["t_high_k_a"],
+                                               sel["dg"], sel["t_k"])],
+        hint="a metastable form (legitimate); if it should be stable somewhere, its ΔfH or S is off")
+
+
+def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
+    """Reactions between two species of the same composition: ``reaction_id, source_id,
+    quantity, t_k, value, uncertainty, react, prod, nu`` (ν of the product, > 0)."""
+    rx = ctx.reactions
+    if not len(rx):
+        return pd.DataFrame()
+    rx = rx[rx["quantity"].isin(["drg", "drh"])]
+    st = rx["stoich_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
+    two = st.map(len) == 2
+    rx, st = rx[two], st[two]
+    if not len(rx):
+        return pd.DataFrame()
+    items = st.map(lambda d: sorted(d.items(), key=lambda kv: kv[1]))
+    out = pd.DataFrame({
+        "reaction_id": rx["reaction_id"].to_numpy(object), "source_id": rx["source_id"].to_numpy(object),
+        "quantity": rx["quantity"].to_numpy(object), "t_k": rx["t_k"].to_numpy(float),
+        "value": rx["value"].to_numpy(float), "uncertainty": rx["uncertainty"].to_numpy(float),
+        "react": items.map(lambda x: x[0][0]).to_numpy(object), "prod": items.map(lambda x: x[1][0]).to_numpy(object),
+        "nu_r": items.map(lambda x: float(x[0][1])).to_numpy(float),
+        "nu": items.map(lambda x: float(x[1][1])).to_numpy(float)})
+    comp = ctx.species.set_index("species")["composition"]
+    same = (out["react"].map(comp) == out["prod"].map(comp)) & np.isclose(out["nu"], -out["nu_r"]) & (out["nu"] > 0)
+    return out[same.to_numpy()].reset_index(drop=True)
+
+
+def _delta(ctx, forms, pos, tr, t):
+    """ν(G_prod − G_react) [J/mol] and ν(S_prod − S_react) [J/(mol*K)] at t."""
+    _, _, sp, gp = species_values(ctx, forms, tr["p_pos"].to_numpy(), t)
+    _, _, sr, gr = species_values(ctx, forms, tr["r_pos"].to_numpy(), t)
+    nu = tr["nu"].to_numpy(float)
+    return nu * (gp - gr), nu * (sp - sr)
+
+
+@check("phase.transition-mismatch", tolerances={"t_warning_k": 1.0, "t_error_k": 5.0,
+                                                "z_warning": 2.0, "z_error": 3.0, "match_k": 0.5})
+def phase_transition_mismatch(ctx: CheckContext) -> pd.DataFrame:
+    """A stated phase transition must sit where the two forms' G curves cross.
+
+    Relation: a transition A = B stated as ΔrG = 0 at T_t (a ``drg`` row with value 0
+    between two species of one composition) requires G_B(T_t) = G_A(T_t); the crossing
+    T_x is root-found (bracketed on a 10 K grid over the common range, then bisection to
+    1e-6 K). Without a crossing inside the common range, T_x is estimated to first order
+    from the end nearest T_t: T_x = T_e + ΔG(T_e)/ΔS(T_e) (since dΔG/dT = −ΔS), and the
+    message says so. A ``drh`` of the same reaction at T_t (within 0.5 K) must equal
+    T_t ΔS(T_t), since ΔH = TΔS where ΔG = 0 (Clausius, common textbook result).
+    Tolerance: crossing — warning beyond 1 K, error beyond 5 K (common practice: tabulated
+    transition temperatures are known to better than 1 K for most substances); drh —
+    z = (measured − T ΔS)/u with u the measurement's standard uncertainty, warning at
+    |z| > 2, error at |z| > 3 (the rule of ``reaction.residual``).
+    """
+    cid = "phase.transition-mismatch"
+    tr = _transition_reactions(ctx)
+    if not len(tr):
+        return empty_findings()
+    forms = species_forms(ctx)
+    pos = pd.Series(np.arange(len(forms)), index=forms["species"])
+    tr["r_pos"] = tr["react"].map(pos)
+    tr["p_pos"] = tr["prod"].map(pos)
+    missing = tr[tr["r_pos"].isna() | tr["p_pos"].isna()]
+    tr = tr.dropna(subset=["r_pos", "p_pos"]).astype({"r_pos": int, "p_pos": int}).reset_index(drop=True)
+    parts = []
+    if len(missing):
+        parts.append(make_findings(
+            check_id=cid, severity="info", subject=missing["reaction_id"], subject_kind="reaction",
+            source_id=missing["source_id"], t_k=missing["t_k"],
+            message=[f"transition {r} = {p} not checked: a species has no record"
+                     for r, p in zip(missing["react"], missing["prod"])],
+            hint="add records for both phases"))
+    stated = tr[(tr["quantity"] == "drg") & (tr["value"].abs() <= 1e-6)].reset_index(drop=True)
+    if len(stated):
+        parts.append(_crossings(ctx, cid, forms, stated))
+        parts.append(_enthalpies(ctx, cid, forms, stated, tr[tr["quantity"] == "drh"].reset_index(drop=True)))
+    parts = [p for p in parts if p is not None and len(p)]
+    return pd.concat(parts, ignore_index=True) if parts else empty_findings()
+
+
+def _crossings(ctx, cid, forms, tr) -> pd.DataFrame:
+    rf, pf = forms.iloc[tr["r_pos"]], forms.iloc[tr["p_pos"]]
+    lo = np.maximum(rf["t_low_k"].to_numpy(float), pf["t_low_k"].to_numpy(float))
+    hi = np.minimum(rf["t_high_k"].to_numpy(float), pf["t_high_k"].to_numpy(float))
+    t_st = tr["t_k"].to_numpy(float)
+    has_range = hi >= lo
+    n = len(tr)
+    t_x = np.full(n, np.nan)
+    how = np.full(n, "", dtype=object)
+    # 1. bracket sign changes of ΔG on a grid over the common range; take the one nearest T_t
+    idx = np.flatnonzero(hi > lo)
+    if len(idx):
+        g = _grid(lo[idx], hi[idx], GRID_K, extra=t_st[idx])
+        sub = tr.iloc[idx[g["i"].to_numpy()]]
+        dg, _ = _delta(ctx, forms, None, sub, g["t_k"].to_numpy(float))
+        g["dg"] = dg
+        nxt = g.shift(-1)
+        br = g[(g["i"] == nxt["i"]) & (np.sign(g["dg"]) * np.sign(nxt["dg"]) <= 0)
+               & g["dg"].notna() & nxt["dg"].notna()].copy()
+        br["t_b"] = nxt.loc[br.index, "t_k"]
+        br["dist"] = np.abs((br["t_k"] + br["t_b"]) / 2 - t_st[idx[br["i"].to_numpy()]])
+        br = br.sort_values(["i", "dist"]).groupby("i").head(1)
+        if len(br):
+            which = idx[br["i"].to_numpy()]
+            a, b = br["t_k"].to_numpy(float), br["t_b"].to_numpy(float)
+            sub = tr.iloc[which]
+            fa, _ = _delta(ctx, forms, None, sub, a)
+            for _ in range(60):                              # bisection, all transitions at once
+                mid = (a + b) / 2
+                fm, _ = _delta(ctx, forms, None, sub, mid)
+                left = np.sign(fm) == np.sign(fa)
+                a, fa = np.where(left, mid, a), np.where(left, fm, fa)
+                b = np.where(left, b, mid)
+                if np.all(b - a < 1e-6):
+                    break
+            t_x[which] = (a + b) / 2
+            how[which] = "G curves cross"
+    # 2. no crossing inside: first-order estimate from the common-range end nearest T_t
+    est = np.isnan(t_x) & has_range
+    if est.any():
+        te = np.clip(t_st[est], lo[est], hi[est])
+        sub = tr[est]
+        dg, ds = _delta(ctx, forms, None, sub, te)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            t_x[est] = te + dg / ds
+        how[est] = [f"estimated from ΔG = {a:.4g} J/mol, ΔS = {b:.4g} J/(mol·K) at {c:g} K "
+                    "(no crossing inside the common range)" for a, b, c in zip(dg, ds, te)]
+    tw, te_ = ctx.tol(cid, "t_warning_k"), ctx.tol(cid, "t_error_k")
+    off = np.abs(t_x - t_st)
+    sev = np.where(off > te_, "error", np.where(off > tw, "warning", None))
+    unknown = np.isnan(t_x)
+    sev = np.where(unknown, "info", sev)
+    keep = np.flatnonzero(sev != None)  # noqa: E711
+    if not len(keep):
+        return empty_findings()
+    k = tr.iloc[keep]
+    msgs = []
+    for j, r in zip(keep, k.itertuples(index=False)):
+        if unknown[j]:
+            msgs.append(f"{r.react} = {r.prod} stated at {r.t_k:g} K: crossing not found "
+                        f"({'no common range' if not has_range[j] else 'G unknown (no ΔfH) or ΔS = 0'})")
+        else:
+            msgs.append(f"{r.react} = {r.prod} stated at {r.t_k:g} K, but their G curves cross at "
+                        f"{t_x[j]:.2f} K ({how[j]}): {t_x[j] - r.t_k:+.2f} K")
+    return make_findings(
+        check_id=cid, severity=sev[keep], subject=k["reaction_id"], subject_kind="reaction",
+        source_id=k["source_id"], t_k=t_st[keep], observed=t_x[keep], expected=t_st[keep],
+        tolerance=np.where(sev[keep] == "error", te_, tw), unit="K", message=msgs,
+        hint=["the stated transition temperature, or ΔfH/S of one phase, is wrong (the phases' data "
+              "may come from different evaluations)" if not unknown[j] else
+              "give both phases absolute enthalpies (ΔfH) over a common range" for j in keep])
+
+
+def _enthalpies(ctx, cid, forms, stated, drh) -> pd.DataFrame:
+    if not len(drh):
+        return empty_findings()
+    key = lambda df: df["react"].where(df["react"] < df["prod"], df["prod"]) + "|" + \
+        df["prod"].where(df["react"] < df["prod"], df["react"])  # noqa: E731
+    s = stated.assign(key=key(stated))[["key", "t_k"]].rename(columns={"t_k": "t_stated"})
+    m = drh.assign(key=key(drh)).merge(s, on="key")
+    m = m[np.abs(m["t_k"] - m["t_stated"]) <= ctx.tol(cid, "match_k")].drop_duplicates("reaction_id")
+    if not len(m):
+        return empty_findings()
+    t = m["t_k"].to_numpy(float)
+    _, ds = _delta(ctx, forms, None, m, t)
+    expected = t * ds
+    u = m["uncertainty"].to_numpy(float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        z = (m["value"].to_numpy(float) - expected) / u
+    zw, ze = ctx.tol(cid, "z_warning"), ctx.tol(cid, "z_error")
+    sev = np.where(np.abs(z) > ze, "error", np.where(np.abs(z) > zw, "warning", None))
+    sev = np.where(np.isnan(expected), "info", sev)
+    keep = np.flatnonzero(sev != None)  # noqa: E711
+    if not len(keep):
+        return empty_findings()
+    k = m.iloc[keep]
+    return make_findings(
+        check_id=cid, severity=sev[keep], subject=k["reaction_id"], subject_kind="reaction",
+        source_id=k["source_id"], t_k=t[keep], observed=k["value"], expected=expected[keep],
+        tolerance=np.where(sev[keep] == "error", ze, zw) * u[keep], unit="J/mol",
+        message=[f"ΔtrsH of {r.react} = {r.prod} at {r.t_k:g} K measured {r.value / 1e3:.4g} kJ/mol, "
+                 f"but T ΔS there is {e / 1e3:.4g} kJ/mol (z = {zz:+.2f})" if np.isfinite(e) else
+                 f"ΔtrsH of {r.react} = {r.prod} at {r.t_k:g} K not checked: a phase's S is unknown there"
+                 for r, e, zz in zip(k.itertuples(index=False), expected[keep], z[keep])],
+        hint="the transition enthalpy disagrees with the phases' entropies: one phase's S (or Cp) "
+             "is off, or the measurement's uncertainty is understated")

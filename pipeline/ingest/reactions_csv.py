@@ -1,0 +1,153 @@
+"""Reader for ``reactions-csv``: reaction measurements (ΔrH, ΔrG, log K).
+
+Columns (inputs.md): ``id``, ``equation``, ``quantity`` (``drh`` | ``drg`` | ``log_k``),
+``t_k`` [K], ``value``, ``unit`` (optional, per row), ``series`` (optional), ``uncertainty``
+(standard uncertainty, k = 1, required) and ``method`` (free text).
+
+Units of ``value`` and ``uncertainty`` for ``drh``/``drg``: the row's ``unit`` cell, else
+the column's header bracket (``uncertainty`` without its own bracket follows ``value``'s),
+else the manifest's ``energy_unit``; ``cal`` is the thermochemical calorie, 4.184 J. An
+energy row with no unit from any of these is rejected (or, when the file has no ``unit``
+column and no other unit source at all, the file is refused with exit 2). ``log_k`` is
+dimensionless: a unit on such a row is an error.
+
+Equations are parsed by :mod:`pipeline.equation` (element and charge balance);
+``stoich_json`` is ``{species_key: ν}``, products positive. A row is one input record; a
+row that cannot be read is rejected alone with its reason: unbalanced equation (the
+imbalance spelled out), unknown quantity, missing uncertainty, bad unit, repeated id.
+"""
+from __future__ import annotations
+
+import json
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..equation import EquationError, parse_equation
+from ..errors import InputError, UnitError
+from ..manifest import Source
+from ..units import column_factor, energy_unit_for, factor_to_si, is_dimensionless
+from .base import REACTION_COLUMNS, REJECTED_COLUMNS, ReadResult, frame
+from .csvframe import load
+
+COLUMNS = ("id", "equation", "quantity", "t_k", "value", "unit", "series", "uncertainty", "method")
+REQUIRED = ("id", "equation", "quantity", "t_k", "value", "uncertainty")
+QUANTITIES = ("drh", "drg", "log_k")
+_HEADER = "id,equation,quantity,t_k,value,unit,uncertainty,method"
+
+
+def _blank_none(s: pd.Series) -> pd.Series:
+    return s.astype(object).where(s != "", None)
+
+
+@lru_cache(maxsize=65536)
+def _parse(equation: str) -> tuple[str | None, str | None]:
+    """(stoich_json, None) or (None, reason)."""
+    try:
+        r = parse_equation(equation)
+    except EquationError as exc:
+        return None, f"equation {equation!r}: {exc}"
+    return json.dumps(r.stoich, sort_keys=True), None
+
+
+def read(path: Path, source: Source, rel: str) -> ReadResult:
+    """Read one reactions-csv file. ``rel`` is the path as reported (relative to raw/)."""
+    cf = load(path, rel, fmt="reactions-csv", allowed=COLUMNS, required=REQUIRED,
+              example_header=_HEADER)
+    header = dict(zip(cf.names, cf.headers))
+    for name in ("id", "equation", "quantity", "unit", "series", "method"):
+        if cf.units.get(name) is not None:
+            raise InputError(rel, 1, f"a unit on column {header[name]!r}", "no unit on a text column",
+                             "remove the bracket")
+    column_factor(rel, header["t_k"], cf.units["t_k"], None, "temperature", source.id)
+    for name in ("value", "uncertainty"):
+        if cf.units.get(name) is not None:   # a bracket must be an energy unit per mol
+            column_factor(rel, header[name], cf.units[name], None, "energy", source.id)
+    cells = cf.cells
+    quantity = cf.text("quantity").str.lower()
+    energy = quantity.isin(["drh", "drg"]).to_numpy()
+    # file-level: energies but no unit from anywhere at all → exit 2, never a guess
+    if (energy.any() and not cf.has("unit") and cf.units["value"] is None
+            and source.energy_unit is None):
+        first = int(cells.loc[energy, "_line"].iloc[0])
+        raise InputError(rel, first, f"a {quantity[energy].iloc[0]} value without a unit (no "
+                         "'unit' column, no [unit] on 'value', no energy_unit in the manifest)",
+                         "the unit of every energy value (units are never guessed)",
+                         "add a unit column, write 'value [kJ/mol]' in the header, or set "
+                         f"energy_unit = \"kJ\" for source {source.id!r} in sources.toml")
+    # ids
+    ids = cf.text("id")
+    cf.reject((ids == "").to_numpy(), "column 'id' is empty — fix: give every measurement a unique id")
+    lines = cells["_line"].astype(int) if len(cells) else pd.Series(dtype=int)
+    dup = ids.duplicated(keep="first") & (ids != "")
+    if dup.any():
+        first_line = dict(zip(ids[~ids.duplicated(keep="first")], lines[~ids.duplicated(keep="first")]))
+        cf.reject(dup.to_numpy(), pd.Series([f"id {i!r} used again (first on line {first_line[i]}) — "
+                                             "fix: give every measurement a unique id" if d else ""
+                                             for i, d in zip(ids, dup)], index=cells.index))
+    # quantity
+    badq = ~quantity.isin(QUANTITIES)
+    cf.reject(badq.to_numpy(), "column 'quantity' = " + cf.text("quantity").map(repr)
+              + ": expected drh, drg or log_k — fix: correct the quantity")
+    # equation
+    parsed = [_parse(e) for e in cf.text("equation")]
+    stoich = pd.Series([p[0] for p in parsed], index=cells.index, dtype=object)
+    eq_err = pd.Series([p[1] or "" for p in parsed], index=cells.index)
+    cf.reject((eq_err != "").to_numpy(), eq_err)
+    # numbers
+    fix = "correct the value"
+    t = cf.numbers("t_k", "temperature [K]", required=True, fix=fix)
+    value = cf.numbers("value", "measured value", required=True, fix=fix)
+    unc_txt = cf.text("uncertainty")
+    cf.reject((unc_txt == "").to_numpy(), "no uncertainty: a measurement without a standard "
+              "uncertainty cannot be weighed — fix: give its standard uncertainty (k = 1) in "
+              "the 'uncertainty' column")
+    unc = cf.numbers("uncertainty", "standard uncertainty", required=True, fix=fix)
+    # units, row by row: unit cell > header bracket > manifest (energies); log_k: none
+    row_unit = cf.text("unit")
+    v_unit = cf.units["value"]
+    u_unit = cf.units.get("uncertainty")
+    manifest = energy_unit_for(source.energy_unit, "energy") if source.energy_unit else None
+    is_log = (quantity == "log_k").to_numpy()
+    is_e = energy
+    uv = row_unit.where(row_unit != "", v_unit or manifest or "")
+    uu = row_unit.where(row_unit != "", u_unit or v_unit or manifest or "")
+    fac: dict[str, float | str] = {}
+    for u in set(uv[is_e]) | set(uu[is_e]):
+        if u:
+            try:
+                fac[u] = factor_to_si(u, "energy")
+            except UnitError as exc:
+                fac[u] = str(exc)
+    fv = uv.map(lambda u: fac.get(u, np.nan))
+    fu = uu.map(lambda u: fac.get(u, np.nan))
+    fv_bad = fv.map(lambda x: isinstance(x, str)).to_numpy()
+    fu_bad = fu.map(lambda x: isinstance(x, str)).to_numpy()
+    unit_reason = np.select(
+        [is_log & ~row_unit.map(is_dimensionless).to_numpy(),
+         is_e & (uv == "").to_numpy(),
+         is_e & fv_bad, is_e & fu_bad],
+        [("unit " + row_unit.map(repr) + " on a log_k row: log K is dimensionless — fix: "
+          "leave the unit cell empty").to_numpy(),
+         "a value without a unit (empty 'unit' cell, no [unit] on 'value', no energy_unit in "
+         "the manifest) — fix: write the unit, e.g. kJ/mol",
+         ("unit of value: " + fv.astype(str) + " — fix: write e.g. kJ/mol or kcal/mol").to_numpy(),
+         ("unit of uncertainty: " + fu.astype(str) + " — fix: write e.g. kJ/mol or kcal/mol").to_numpy()],
+        default="")
+    f_val = np.where(is_log, 1.0, pd.to_numeric(fv.where(~fv_bad), errors="coerce").to_numpy(float))
+    f_unc = np.where(is_log, 1.0, pd.to_numeric(fu.where(~fu_bad), errors="coerce").to_numpy(float))
+    unit_si = np.where(is_log, "1", "J/mol")
+    cf.reject(unit_reason != "", pd.Series(unit_reason, index=cells.index, dtype=object))
+    ok = cf.ok
+    out = pd.DataFrame({
+        "reaction_id": ids, "source_id": source.id, "file": rel, "line": lines,
+        "equation": cf.text("equation"), "stoich_json": stoich, "quantity": quantity,
+        "t_k": t, "value": value * f_val, "uncertainty": unc * f_unc, "unit": unit_si,
+        "series": _blank_none(cf.text("series")), "method": _blank_none(cf.text("method")),
+    }, index=cells.index)[ok]
+    return ReadResult(n_read=cf.n_rows,
+                      reactions=out.reset_index(drop=True)[list(REACTION_COLUMNS)] if len(out)
+                      else frame([], REACTION_COLUMNS),
+                      rejected=frame(cf.rejected_rows(source.id), REJECTED_COLUMNS))
