@@ -432,25 +432,29 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
 
 def _worst_offender_loop(c: "_Component", z_max: float, alpha: float, max_frac: float) -> None:
     limit = max(1, int(max_frac * c.m)) if c.m else 0
-    step = 0
+    step = removed = 0
     while True:
         c.refit()
         if c.dof <= 0:
             return
         crit = float(_chi2.ppf(1.0 - alpha, c.dof))
-        pick = c.worst()
-        if pick is None:
+        picks = c.worst(z_max)
+        if not picks:
             return
-        kind, idx, t, r = pick
-        if not (abs(t) > z_max or c.chi2 > crit):
+        t_top = abs(picks[0][2])
+        if not (t_top > z_max or c.chi2 > crit):
             return
-        if step >= limit:
-            c.stopped_early = (f"stopped after setting aside {step} data: χ² = {c.chi2:.4g} still exceeds "
-                               f"{crit:.4g} (dof {c.dof})")
+        # χ² alone (no datum beyond z_max): one at a time; otherwise the batch beyond z_max
+        picks = [q for q in picks if abs(q[2]) > z_max] if t_top > z_max else picks[:1]
+        if removed + len(picks) > limit:
+            c.stopped_early = (f"stopped after setting aside {removed} data: χ² = {c.chi2:.4g} still exceeds "
+                               f"{crit:.4g} (dof {c.dof}) or |t| = {t_top:.2f} > {z_max:g}")
             return
         step += 1
-        c.events.append(SetAside(kind, idx, step, t, r))
-        c.remove(kind, idx)
+        for kind, idx, t, r in picks:
+            c.events.append(SetAside(kind, idx, step, t, r))
+            c.remove(kind, idx)
+        removed += len(picks)
 
 
 class _Component:
@@ -550,7 +554,7 @@ class _Component:
 
     def _probe(self):
         G = self.rng.standard_normal((self.J.shape[0], self.n_probes))
-        Y = block_pcg(self.M, self.J.T @ G, self.dinv)
+        Y = block_pcg(self.M, self.J.T @ G, self.dinv, rtol=1e-9)
         var = (Y ** 2).mean(axis=1)
         one_minus_h = ((G - self.J @ Y) ** 2).mean(axis=1)
         return var, _RowMap(self.m, self.n, self.im, self.ip, one_minus_h)
@@ -571,29 +575,56 @@ class _Component:
         return float(a @ y)
 
     # ---- the loop's choice
-    def worst(self):
-        """(kind, index, t, residual [J/mol]) of the datum with the largest |t|, or None."""
+    def worst(self, z_max: float) -> list:
+        """Data to set aside next, largest |t| first: [(kind, index, t, residual [J/mol])].
+
+        Exact path: the single datum with the largest |t|. Iterative path: t from the
+        randomised leverages, exact for the most suspicious ``N_CANDIDATES`` (and for up to
+        64 beyond z_max); of the data beyond z_max, every one that has the largest |t|
+        within two steps of the network (data sharing a species with a datum that shares
+        a species with it) — gross errors far apart do not affect each other's residuals,
+        so they are set aside in one step, as serial elimination would, while neighbours
+        of a removed datum are re-tested after the refit.
+        """
         one_minus = 1.0 - self.h
         testable = one_minus > H_ONE
         t = np.where(testable, self.res_w / np.sqrt(np.where(testable, one_minus, 1.0)), 0.0)
         if not self.dense and self.n and len(t):
-            # exact leverages for the most suspicious data (by estimated t and by plain r/u)
-            cand = np.unique(np.concatenate([np.argsort(-np.abs(t), kind="stable")[:N_CANDIDATES],
-                                             np.argsort(-np.abs(self.res_w), kind="stable")[:N_CANDIDATES]]))
+            n_flag = int((np.abs(t) > z_max).sum())
+            cand = np.unique(np.concatenate([
+                np.argsort(-np.abs(t), kind="stable")[:max(N_CANDIDATES, min(n_flag, 64))],
+                np.argsort(-np.abs(self.res_w), kind="stable")[:N_CANDIDATES]]))
             om = 1.0 - self._exact_h(cand)
             ok = om > H_ONE
-            t = np.zeros(len(t))
             t[cand] = np.where(ok, self.res_w[cand] / np.sqrt(np.where(ok, om, 1.0)), 0.0)
-            testable = np.zeros(len(t), bool)
             testable[cand] = ok
         if not testable.any():
-            return None
-        k = int(np.argmax(np.where(testable, np.abs(t), -1.0)))
-        r = float(self.res_w[k] * self.sig[k])
+            return []
+        at = np.where(testable, np.abs(t), -1.0)
+        if self.dense:
+            chosen = np.array([int(np.argmax(at))])
+        else:
+            flagged = np.flatnonzero(at > z_max)
+            chosen = np.array([int(np.argmax(at))]) if len(flagged) <= 1 else self._local_maxima(flagged, at)
         nm = len(self.im)
-        if k < nm:
-            return "measurement", int(self.im[k]), float(t[k]), r
-        return "prior", int(self.ip[k - nm]), float(t[k]), r
+        out = []
+        for k in chosen[np.argsort(-at[chosen], kind="stable")]:
+            r = float(self.res_w[k] * self.sig[k])
+            out.append(("measurement", int(self.im[k]), float(t[k]), r) if k < nm
+                       else ("prior", int(self.ip[k - nm]), float(t[k]), r))
+        return out
+
+    def _local_maxima(self, flagged: np.ndarray, at: np.ndarray) -> np.ndarray:
+        """Flagged rows with the largest |t| among the flagged rows within two steps."""
+        S = (self.J != 0).astype(float).tocsr()
+        K = S[flagged] @ S.T                     # rows sharing a species with each flagged row
+        N2 = (K @ K.T).tocoo()                   # flagged pairs within two steps
+        i, j = N2.row, N2.col
+        ti, tj = at[flagged[i]], at[flagged[j]]
+        beaten = (i != j) & ((tj > ti) | ((tj == ti) & (j < i)))
+        keep = np.ones(len(flagged), bool)
+        keep[i[beaten]] = False
+        return flagged[keep]
 
     def remove(self, kind: str, idx: int) -> None:
         (self.active_m if kind == "measurement" else self.active_p)[idx] = False

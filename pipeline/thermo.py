@@ -73,6 +73,15 @@ def evaluate(coef: np.ndarray, t_k: np.ndarray) -> Properties:
     return Properties(cp=cp, h=h, s=s, g=h - t * s, dcp_dt=R * dcp_r)
 
 
+def heat_capacity(coef: np.ndarray, t_k: np.ndarray) -> np.ndarray:
+    """Cp [J/(mol*K)] alone (cheaper than :func:`evaluate` when H, S, G are not needed)."""
+    c = np.asarray(coef, dtype=float)
+    t = np.asarray(t_k, dtype=float)
+    inv = 1.0 / t
+    poly = c[..., 2] + t * (c[..., 3] + t * (c[..., 4] + t * (c[..., 5] + t * c[..., 6])))
+    return R * (inv * (c[..., 0] * inv + c[..., 1]) + poly)
+
+
 def on_grid(coef: np.ndarray, t_k: np.ndarray) -> Properties:
     """Evaluate n segments (n, 9) on one grid (m,) → (n, m) arrays."""
     return evaluate(np.asarray(coef, float)[:, None, :], np.asarray(t_k, float)[None, :])

@@ -582,9 +582,10 @@ def build(out: Path, verbose: bool = True) -> dict:
           "! INVENTED DATA for the thermoledger demo: computed from RRHO models, see raw/README.md.",
           "THERMO",
           "   200.000  1000.000  3500.000"]
+    tcl_fits = {}
     for key in NASA7_SET:
         gas = GASES[key]
-        fit = fit_record(gas, NASA7_BOUNDS, NASA7_EXPS)
+        fit = tcl_fits[key] = fit_record(gas, NASA7_BOUNDS, NASA7_EXPS)
         report["fits"][f"nasa7 {key}"] = fit_report(fit, gas)
         name = NASA7_NAMES.get(key, formula_of(key))
         n7 += nasa7_lines(name, fit, elements_of(formula_of(key)), "G", "TCL 24")
@@ -599,11 +600,12 @@ def build(out: Path, verbose: bool = True) -> dict:
     assert abs(jump[2]) > 0.1 or abs(jump[1]) > 100, "planted discontinuity too small"
     report["planted"]["N2O(g) discontinuity at 1000 K (dCp, dH, dS)"] = [float(v) for v in jump[:3]]
     n7 += nasa7_lines("N2O", bad, {"N": 2, "O": 1}, "G", "TCL 24")
-    # planted 2: HO2 — the lower range's T² coefficient lost a digit in its exponent (×10).
+    # planted 2: HO2 — the lower range's T coefficient has a typo in its exponent (×10).
     ho2 = GASES["HO2(g)"]
     fit = fit_record(ho2, NASA7_BOUNDS, NASA7_EXPS)
     typo = fit.coef.copy()
-    typo[0, 4] *= 10.0 if typo[0, 4] < 0 else -10.0
+    assert typo[0, 3] < 0, "HO2: the T coefficient should be negative for this typo to bite"
+    typo[0, 3] *= 10.0                    # E-03 written as E-02
     bad = Fit(ho2.key, fit.bounds, typo, P_STD_BAR)
     tt = np.linspace(200, 1000, 801)
     cp_min = float(np.min(bad.eval(tt)[0]))
@@ -631,9 +633,12 @@ def build(out: Path, verbose: bool = True) -> dict:
           "    200.000   1000.000   6000.000  20000.000   1/01/87"]
     for key in NASA9_GASES:
         gas = GASES[key]
-        # planted 3b: N2 copied from a 1 bar table into this 1 atm compilation
-        p = P_STD_BAR if key == "N2(g)" else ATM_BAR
-        fit = fit_record(gas, GAS_BOUNDS, NASA9_EXPS, p_bar=p)
+        if key == "N2(g)":
+            # planted 3b: N2 copied unchanged from a 1 bar source (the TCL polynomial, here in
+            # 9-term form) into this 1 atm compilation: same Cp, S not shifted by R ln 1.01325.
+            fit = tcl_fits[key]
+        else:
+            fit = fit_record(gas, GAS_BOUNDS, NASA9_EXPS, p_bar=ATM_BAR)
         report["fits"][f"nasa9 {key}"] = fit_report(fit, gas)
         dfh = gas.dfh298_j_mol
         h0 = float(gas.h_minus_h0(T_REF))
@@ -698,7 +703,7 @@ def build(out: Path, verbose: bool = True) -> dict:
     files["calorimetry/reactions.csv"] = "\n".join(reaction_lines(rng)) + "\n"
 
     files["sources.toml"] = SOURCES_TOML
-    files["README.md"] = readme_text()
+    files["README.md"] = readme_text(report)
 
     # self-checks: table integrals with a cubic spline (what a consumer will do)
     report["table_spline_max_ds"] = _table_selfcheck(files, out)
@@ -803,12 +808,48 @@ citation = "TCL calorimetry group, reaction enthalpies and ammonia equilibrium (
 '''
 
 
-def readme_text() -> str:
-    return README
+def _gas_table() -> str:
+    rows = ["| species | geometry | σ | rotational constants / cm⁻¹ | vibrational wavenumbers / cm⁻¹ "
+            "| electronic levels (g, cm⁻¹) | ΔfH°(298.15) / kJ mol⁻¹ |",
+            "|---|---|---|---|---|---|---|"]
+    for g in GASES.values():
+        vib = ", ".join(f"{v:g}" for v in g.vib_cm) or "—"
+        rot = ", ".join(f"{v:g}" for v in g.rot_cm) or "—"
+        el = "; ".join(f"({n}, {e:g})" for n, e in g.elec)
+        rows.append(f"| {g.key} | {g.geometry} | {g.sigma if g.geometry != 'atom' else '—'} | {rot} "
+                    f"| {vib} | {el} | {g.dfh298_j_mol / 1000:g} |")
+    return "\n".join(rows)
 
 
-README = open(Path(__file__).resolve().parent / "demo_readme.md", encoding="utf-8").read() \
-    if (Path(__file__).resolve().parent / "demo_readme.md").is_file() else ""
+def _crystal_table() -> str:
+    rows = ["| species | n (Debye) | θ_D / K | Einstein modes (Θ_E / K × n) | γ / J mol⁻¹ K⁻² "
+            "| Nernst–Lindemann A / mol J⁻¹ | ΔfH°(298.15) / kJ mol⁻¹ |", "|---|---|---|---|---|---|---|"]
+    for c in (GRAPHITE, DIAMOND, MAGNESIUM, MGO, ICE):
+        ein = ", ".join(f"{t:g} × {n}" for t, n in c.einstein) or "—"
+        rows.append(f"| {c.key} | {c.n_debye:g} | {c.theta_debye_k:g} | {ein} | {c.gamma_el:g} "
+                    f"| {c.a_nl:g} | {c.dfh298_j_mol / 1000:.3f} |")
+    return "\n".join(rows)
+
+
+def _fit_summary(report: dict) -> str:
+    """One sentence per polynomial form: the largest relative Cp deviation from the models."""
+    parts = []
+    for form, label in (("nasa7", "NASA-7"), ("nasa9", "NASA-9"), ("shomate", "Shomate")):
+        fits = {k.split(" ", 1)[1]: v for k, v in report["fits"].items() if k.startswith(form + " ")}
+        worst = max(fits, key=lambda k: fits[k]["cp_rel"])
+        rest = max((v["cp_rel"] for k, v in fits.items() if k != worst), default=0.0)
+        parts.append(f"{label} records within {100 * fits[worst]['cp_rel']:.2f} % ({worst}; "
+                     f"the others within {100 * rest:.2f} %)")
+    return "; ".join(parts)
+
+
+def readme_text(report: dict) -> str:
+    return README_TEMPLATE.format(gas_table=_gas_table(), crystal_table=_crystal_table(),
+                                  seed=SEED, bad=BAD_REACTION, shift=BAD_SHIFT_KJ,
+                                  fit_summary=_fit_summary(report))
+
+
+README_TEMPLATE = (Path(__file__).resolve().parent / "demo_readme.md").read_text(encoding="utf-8")
 
 
 def main(argv=None) -> int:

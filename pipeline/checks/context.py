@@ -13,7 +13,7 @@ import pandas as pd
 
 from ..config import Config
 from ..constants import P_STD_BAR, R
-from ..thermo import COEF_COLUMNS, SegmentIndex, evaluate
+from ..thermo import COEF_COLUMNS, SegmentIndex, evaluate, heat_capacity
 
 
 @dataclass
@@ -118,7 +118,7 @@ def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int
     roots_in = np.where(inside, roots_all, t_lo[:, None])
     cand.append(roots_in)
     t = np.concatenate(cand, axis=1)
-    cp = evaluate(coef[:, None, :], t).cp
+    cp = heat_capacity(coef[:, None, :], t)
     imin = np.nanargmin(cp, axis=1)
     imax = np.nanargmax(cp, axis=1)
     rows = np.arange(n)

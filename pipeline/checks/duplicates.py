@@ -141,27 +141,34 @@ def duplicate_disagreement(ctx: CheckContext) -> pd.DataFrame:
             if obs is not None and i not in pat_obs:
                 pat_obs[i] = obs(i)
 
+    # ratio patterns: which quantities of which side are 4.184 or 1000 × the other's
+    ratio_hits: dict[tuple, list[str]] = {}     # (pair, factor, bigger side) → quantities
+    ratio_obs: dict[tuple, float] = {}
+    band = np.log1p(tol["ratio_rel"])
     for q, a, b in (("Cp", va.cp, vb.cp), ("S", va.s, vb.s), ("H − H298", va.h_minus_h298, vb.h_minus_h298)):
         with np.errstate(invalid="ignore", divide="ignore"):
-            big = np.maximum(np.abs(a), np.abs(b))
-            ref = pd.Series(big).groupby(p).transform("max").to_numpy()
-            ok = (np.abs(a) > 1e-3 * ref) & (np.abs(b) > 1e-3 * ref) & (a / b > 0)
+            # only points where both values are well away from zero (H − H298 near 298.15 K)
+            ref_a = pd.Series(np.abs(a)).groupby(p).transform("max").to_numpy()
+            ref_b = pd.Series(np.abs(b)).groupby(p).transform("max").to_numpy()
+            ok = (np.abs(a) > 1e-3 * ref_a) & (np.abs(b) > 1e-3 * ref_b) & (a / b > 0)
             lr = np.where(ok, np.log(np.abs(a / b)), np.nan)
         s = pd.DataFrame({"pair": p, "lr": lr}).dropna().groupby("pair")["lr"].agg(["min", "max", "size"])
-        for factor, why in ((CAL_TH_J, "calorie/joule (one source in thermochemical calories)"),
-                            (1000.0, "kilo prefix (one source in kJ where J is meant, or the reverse)")):
-            band = np.log1p(tol["ratio_rel"])
-            for sign in (1, -1):
+        for factor in (CAL_TH_J, 1000.0):
+            for sign, side in ((1, "a"), (-1, "b")):
                 hit = (s["size"] >= 3) & ((s["min"] * sign - np.log(factor)).abs() < band) \
                     & ((s["max"] * sign - np.log(factor)).abs() < band)
-                hit = hit.reindex(pairs["pair"], fill_value=False)
-                big_side = "a" if sign == 1 else "b"
-                flag(hit, 2,
-                     lambda i, q=q, f=factor, w=why, bs=big_side: (
-                         f"{q} of {pairs.at[i, 'src_' + bs]} is {f:g} × that of "
-                         f"{pairs.at[i, 'src_' + ('b' if bs == 'a' else 'a')]} at every point: {w}"),
-                     obs=lambda i, s=s, sign=sign, f=factor: (float(np.exp(sign * s.at[i, 'min'])), f,
-                                                              tol["ratio_rel"] * f, "1"))
+                for i in hit[hit].index:
+                    ratio_hits.setdefault((i, factor, side), []).append(q)
+                    ratio_obs.setdefault((i, factor, side), float(np.exp(sign * s.at[i, "min"])))
+    why = {CAL_TH_J: "calorie/joule: one source is in thermochemical calories (4.184 J)",
+           1000.0: "kilo prefix: one source is in kJ where J is meant, or the reverse"}
+    for (i, factor, side), qs_hit in ratio_hits.items():
+        big, small = pairs.at[i, "src_" + side], pairs.at[i, "src_" + ("b" if side == "a" else "a")]
+        mask = pd.Series(False, index=pairs["pair"])
+        mask[i] = True
+        flag(mask, 2, f"{', '.join(qs_hit)} of {big} {'is' if len(qs_hit) == 1 else 'are'} {factor:g} × "
+                      f"{small}'s at every point — {why[factor]}",
+             obs=lambda i, k=(i, factor, side): (ratio_obs[k], k[1], tol["ratio_rel"] * k[1], "1"))
 
     ds = _constant(pd.Series(va.s - vb.s), p, rel).reindex(pairs["pair"])
     gas = pairs.set_index("pair")["state"].eq("g")
@@ -177,11 +184,14 @@ def duplicate_disagreement(ctx: CheckContext) -> pd.DataFrame:
     flag(s_off, 1, lambda i: (f"S differs by a constant {ds.at[i, 'mean']:+.3f} J/(mol·K) with equal Cp: "
                               "a different entropy constant (S298 or the b2 coefficient)"),
          obs=lambda i: (abs(ds.at[i, "mean"]), 0.0, tol["offset_s_j_mol_k"], "J/(mol*K)"))
-    for q, diff, why in (("H", va.h - vb.h, "a different ΔfH(298.15) (or an element reference not at zero)"),
-                         ("H − H298", va.h_minus_h298 - vb.h_minus_h298,
-                          "H − H(T_ref) on another reference temperature (e.g. H − H(0))")):
+    h_ref_off = pd.Series(False, index=pairs["pair"])
+    for q, diff, why in (("H − H298", va.h_minus_h298 - vb.h_minus_h298,
+                          "H − H(T_ref) on another reference temperature (e.g. H − H(0))"),
+                         ("H", va.h - vb.h, "a different ΔfH(298.15) (or an element reference not at zero)")):
         dh = _constant(pd.Series(diff), p, rel).reindex(pairs["pair"])
         h_off = cp_equal & dh["constant"].fillna(False).astype(bool) & (dh["mean"].abs() >= tol["offset_h_j_mol"])
+        h_off = h_off & ~h_ref_off          # an H − H298 offset shifts H too: one diagnosis
+        h_ref_off = h_off
         flag(h_off, 1, lambda i, dh=dh, q=q, why=why: (
             f"{q} differs by a constant {dh.at[i, 'mean']:+.0f} J/mol with equal Cp: {why}"),
             obs=lambda i, dh=dh: (abs(dh.at[i, "mean"]), 0.0, tol["offset_h_j_mol"], "J/mol"))
@@ -197,7 +207,8 @@ def duplicate_disagreement(ctx: CheckContext) -> pd.DataFrame:
     for i in keep:
         pr = pairs.iloc[i]
         parts = [f"{names[q]} up to {maxima.at[i, q] * (100 if q == 'cp' else 1):.3g}"
-                 f"{' %' if q == 'cp' else ' ' + units[q]}" for q in qs if np.isfinite(maxima.at[i, q])]
+                 f"{' %' if q == 'cp' else ' ' + units[q].replace('*', '·')}"
+                 for q in qs if np.isfinite(maxima.at[i, q])]
         msg = f"{pr.src_a} and {pr.src_b} disagree over {pr.lo:g}–{pr.hi:g} K: " + ", ".join(parts)
         if tol_sev[i] > 0:
             q = qs[int(top.at[i, "worst_q"])]
@@ -211,7 +222,7 @@ def duplicate_disagreement(ctx: CheckContext) -> pd.DataFrame:
         rows.append(dict(severity=("warning", "error")[sev[i] - 1], subject=pr.species,
                          source_id="+".join(sorted({pr.src_a, pr.src_b})), t_k=t_w, observed=obs,
                          expected=exp, tolerance=tl, unit=unit,
-                         message=msg + ("; " + "; ".join(h) if h else ""),
+                         message=msg + ("; the pattern matches a known mistake (see hint)" if h else ""),
                          hint="; ".join(h) if h else "independent data disagree: compare the sources' "
                                                      "origins and prefer the better documented one"))
     f = pd.DataFrame(rows)

@@ -48,7 +48,7 @@ def formation_reference_element(ctx: CheckContext) -> pd.DataFrame:
     warn_t, err_t = ctx.tol(cid, "warning_j_mol"), ctx.tol(cid, "error_j_mol")
     rows = []
     rec = ctx.records[ctx.records["species"].isin(ref)]
-    poly = rec[rec["kind"] == "polynomial"]
+    poly = rec[(rec["kind"] == "polynomial") & rec["record_id"].isin(ctx.segments["record_id"])]
     if len(poly):
         h = _h298(ctx, poly["record_id"].to_numpy())
         rows.append(pd.DataFrame({
@@ -112,7 +112,8 @@ def formation_stated_vs_polynomial(ctx: CheckContext) -> pd.DataFrame:
     """
     cid = "formation.stated-vs-polynomial"
     rec = ctx.records
-    rec = rec[(rec["kind"] == "polynomial") & pd.to_numeric(rec["stated_dfh_j_mol"], errors="coerce").notna()]
+    rec = rec[(rec["kind"] == "polynomial") & rec["record_id"].isin(ctx.segments["record_id"])
+              & pd.to_numeric(rec["stated_dfh_j_mol"], errors="coerce").notna()]
     if len(rec) == 0:
         return empty_findings()
     stated = rec["stated_dfh_j_mol"].to_numpy(float)

@@ -83,6 +83,23 @@ def gas_ceiling_r(n_atoms, geometry) -> tuple[np.ndarray, np.ndarray]:
     return np.where(np.isfinite(n), limit, np.nan), atom
 
 
+def segment_cp_extrema(ctx: CheckContext) -> pd.DataFrame:
+    """Exact Cp extrema of every segment (rows aligned with ``ctx.segment_species``):
+    t_min_k, cp_min, t_max_k, cp_max [K, J/(mol*K)] from :func:`cp_extrema`. Cached on the
+    context, since several checks need them and the root finding dominates their cost."""
+    cached = ctx.__dict__.get("_segment_cp_extrema")
+    if cached is not None:
+        return cached
+    seg = ctx.segment_species
+    coef = seg[list(COEF_COLUMNS)].to_numpy(float)
+    t_min, cp_min, t_max, cp_max = cp_extrema(coef, seg["t_low_k"].to_numpy(float),
+                                              seg["t_high_k"].to_numpy(float))
+    out = pd.DataFrame({"record_id": seg["record_id"].to_numpy(object), "t_min_k": t_min,
+                        "cp_min": cp_min, "t_max_k": t_max, "cp_max": cp_max})
+    ctx.__dict__["_segment_cp_extrema"] = out
+    return out
+
+
 def record_cp_extrema(ctx: CheckContext) -> pd.DataFrame:
     """Exact Cp minimum and maximum of every record over its stated range, with species data.
 
@@ -95,12 +112,8 @@ def record_cp_extrema(ctx: CheckContext) -> pd.DataFrame:
     if cached is not None:
         return cached
     parts = []
-    seg = ctx.segment_species
-    if len(seg):
-        coef = seg[list(COEF_COLUMNS)].to_numpy(float)
-        t_min, cp_min, t_max, cp_max = cp_extrema(coef, seg["t_low_k"].to_numpy(float),
-                                                  seg["t_high_k"].to_numpy(float))
-        s = seg[["record_id"]].assign(t_min_k=t_min, cp_min=cp_min, t_max_k=t_max, cp_max=cp_max)
+    if len(ctx.segment_species):
+        s = segment_cp_extrema(ctx)
         lo = s.loc[s.groupby("record_id")["cp_min"].idxmin(), ["record_id", "t_min_k", "cp_min"]]
         hi = s.loc[s.groupby("record_id")["cp_max"].idxmax(), ["record_id", "t_max_k", "cp_max"]]
         parts.append(lo.merge(hi, on="record_id"))

@@ -289,8 +289,8 @@ def _crossings(ctx, cid, forms, tr) -> pd.DataFrame:
         dg, ds = _delta(ctx, forms, None, sub, te)
         with np.errstate(divide="ignore", invalid="ignore"):
             t_x[est] = te + dg / ds
-        how[est] = [f"estimated from ΔG = {a:.4g} J/mol, ΔS = {b:.4g} J/(mol·K) at {c:g} K "
-                    "(no crossing inside the common range)" for a, b, c in zip(dg, ds, te)]
+        how[est] = [f"no crossing inside the common range; first-order estimate from ΔG = {a:.4g} J/mol "
+                    f"and ΔS = {b:.4g} J/(mol·K) at {c:g} K" for a, b, c in zip(dg, ds, te)]
     tw, te_ = ctx.tol(cid, "t_warning_k"), ctx.tol(cid, "t_error_k")
     off = np.abs(t_x - t_st)
     sev = np.where(off > te_, "error", np.where(off > tw, "warning", None))

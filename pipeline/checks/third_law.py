@@ -9,8 +9,8 @@ from ..constants import R, R_LN_ATM
 from ..findings import empty_findings, make_findings
 from ..physics import debye_entropy, debye_temperature, sackur_tetrode_entropy
 from ..thermo import COEF_COLUMNS, evaluate
-from .context import CheckContext, cp_extrema
-from .heat_capacity import CP_TRANSLATION_R
+from .context import CheckContext
+from .heat_capacity import CP_TRANSLATION_R, segment_cp_extrema
 from .registry import check
 
 CONDENSED = ("cr", "l")
@@ -323,7 +323,9 @@ def thirdlaw_gas_entropy_floor(ctx: CheckContext) -> pd.DataFrame:
     Polynomials are checked exactly enough without a grid: f(T) = S − S_tr has
     df/dT = (Cp − 5/2 R)/T, so f rises wherever Cp ≥ 5/2 R and its minimum on such a
     segment is at the segment's lower end; only segments whose exact Cp minimum
-    (``cp_extrema``) dips below 5/2 R are sampled on a 257-point grid. Tables: every row
+    (``cp_extrema``) dips below 5/2 R are sampled on a 257-point grid (df/dT = 0 at an
+    interior minimum, so the grid misses it only to second order in the spacing; such a
+    record already fails ``cp.gas-floor``). Tables: every row
     with T > 0. Tolerance: error when S < S_tr − 0.05 J/(mol·K) (table rounding; common
     practice).
     """
@@ -332,11 +334,12 @@ def thirdlaw_gas_entropy_floor(ctx: CheckContext) -> pd.DataFrame:
     mm = ctx.species.set_index("species")["molar_mass_g_mol"]
     cands = []
     seg = ctx.segment_species
-    seg = seg[seg["state"] == "g"]
+    is_gas = (seg["state"] == "g").to_numpy(bool)
+    seg = seg[is_gas]
     if len(seg):
         coef = seg[list(COEF_COLUMNS)].to_numpy(float)
         lo, hi = seg["t_low_k"].to_numpy(float), seg["t_high_k"].to_numpy(float)
-        _, cp_min, _, _ = cp_extrema(coef, lo, hi)
+        cp_min = segment_cp_extrema(ctx)["cp_min"].to_numpy(float)[is_gas]
         dense = np.flatnonzero(cp_min < CP_TRANSLATION_R * R)
         m = seg["species"].map(mm).to_numpy(float)
         # ends of every segment; a 257-point grid only where Cp dips below 5/2 R

@@ -67,7 +67,7 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
             column_factor(rel, header[name], cf.units[name], None, "energy", source.id)
     cells = cf.cells
     quantity = cf.text("quantity").str.lower()
-    energy = quantity.isin(["drh", "drg"]).to_numpy()
+    energy = quantity.isin(["drh", "drg"]).to_numpy(dtype=bool)
     # file-level: energies but no unit from anywhere at all → exit 2, never a guess
     if (energy.any() and not cf.has("unit") and cf.units["value"] is None
             and source.energy_unit is None):
@@ -110,7 +110,7 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
     v_unit = cf.units["value"]
     u_unit = cf.units.get("uncertainty")
     manifest = energy_unit_for(source.energy_unit, "energy") if source.energy_unit else None
-    is_log = (quantity == "log_k").to_numpy()
+    is_log = (quantity == "log_k").to_numpy(dtype=bool)
     is_e = energy
     uv = row_unit.where(row_unit != "", v_unit or manifest or "")
     uu = row_unit.where(row_unit != "", u_unit or v_unit or manifest or "")
@@ -123,11 +123,11 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
                 fac[u] = str(exc)
     fv = uv.map(lambda u: fac.get(u, np.nan))
     fu = uu.map(lambda u: fac.get(u, np.nan))
-    fv_bad = fv.map(lambda x: isinstance(x, str)).to_numpy()
-    fu_bad = fu.map(lambda x: isinstance(x, str)).to_numpy()
+    fv_bad = fv.map(lambda x: isinstance(x, str)).to_numpy(dtype=bool)
+    fu_bad = fu.map(lambda x: isinstance(x, str)).to_numpy(dtype=bool)
     unit_reason = np.select(
-        [is_log & ~row_unit.map(is_dimensionless).to_numpy(),
-         is_e & (uv == "").to_numpy(),
+        [is_log & ~row_unit.map(is_dimensionless).to_numpy(dtype=bool),
+         is_e & (uv == "").to_numpy(dtype=bool),
          is_e & fv_bad, is_e & fu_bad],
         [("unit " + row_unit.map(repr) + " on a log_k row: log K is dimensionless — fix: "
           "leave the unit cell empty").to_numpy(),

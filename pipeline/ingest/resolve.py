@@ -132,7 +132,8 @@ def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
             elements_json=json.dumps({k: v for k, v in f.elements.items() if k != "e"}, sort_keys=True),
             composition=composition_key(f.elements, f.charge), n_atoms=f.n_atoms,
             molar_mass_g_mol=f.molar_mass_g_mol,
-            stated_molar_mass_g_mol=(float(m["stated_molar_mass_g_mol"]) if m is not None else np.nan),
+            stated_molar_mass_g_mol=(float(m["stated_molar_mass_g_mol"])
+                                     if m is not None and pd.notna(m["stated_molar_mass_g_mol"]) else np.nan),
             reference_element=bool(m["reference_element"]) if m is not None else False,
             geometry=(m["geometry"] if m is not None and isinstance(m["geometry"], str) else
                       ("atom" if f.n_atoms == 1 else None)),

@@ -116,7 +116,9 @@ def _figure(sp: str, curves: list[dict], g_pref: np.ndarray, pref_id: str | None
           "axes.edgecolor": "#555555", "axes.linewidth": 0.6, "xtick.color": "#333333",
           "ytick.color": "#333333", "axes.titlesize": 9.5, "axes.titleweight": "bold"}
     with matplotlib.rc_context(rc):
-        fig = Figure(figsize=(9.0, 5.8), layout="constrained")
+        # fixed margins: an automatic layout engine costs more than the drawing itself
+        fig = Figure(figsize=(9.0, 6.0))
+        fig.subplots_adjust(left=0.075, right=0.985, top=0.955, bottom=0.15, wspace=0.2, hspace=0.2)
         axes = fig.subplots(2, 2, sharex=True).ravel()
         panels = (("cp", "Cp  [J/(mol·K)]", 1.0), ("hmh", "H − H(298.15 K)  [kJ/mol]", 1e-3),
                   ("s", "S  [J/(mol·K)]", 1.0), ("g", "G − G(preferred record)  [kJ/mol]", 1e-3))
@@ -160,7 +162,7 @@ def _figure(sp: str, curves: list[dict], g_pref: np.ndarray, pref_id: str | None
         labels.append("segment joint")
         handles.append(matplotlib.patches.Patch(color=SHADE["error"]))
         labels.append("worst T of a finding")
-        fig.legend(handles, labels, loc="outside lower center", ncols=min(4, len(labels)), frameon=False)
+        fig.legend(handles, labels, loc="lower center", ncols=min(4, len(labels)), frameon=False)
         buf = io.StringIO()
         fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None})
     return _inline(buf.getvalue(), f"Cp, H − H298, S and G − G(preferred) against T for {sp}")

@@ -16,6 +16,11 @@ def summary_text(run, max_rows: int = 40) -> str:
     counts = live["severity"].value_counts() if len(live) else pd.Series(dtype=int)
     lines.append(f"  findings: {int(counts.get('error', 0))} error, {int(counts.get('warning', 0))} warning, "
                  f"{int(counts.get('info', 0))} info" + (f"   ({int(f['waived'].sum())} waived)" if len(f) else ""))
+    prev = (run.extra.get("previous") or {}).get("findings")
+    if prev is not None and len(f):
+        new = f[~f["fingerprint"].isin(set(prev["fingerprint"].dropna()))]
+        gone = prev[~prev["fingerprint"].isin(set(f["fingerprint"]))]["fingerprint"].nunique()
+        lines.append(f"  since the previous run: {len(new)} new, {gone} no longer reported")
     if len(live):
         by = live.groupby(["check_id", "severity"]).size().reset_index(name="n")
         lines.append("")
@@ -31,5 +36,6 @@ def summary_text(run, max_rows: int = 40) -> str:
         if len(shown) > max_rows:
             lines.append(f"    … {len(shown) - max_rows} more in curated/report/ and the findings table")
     lines.append("")
-    lines.append(f"  outputs: {run.out}/thermo.duckdb, {run.out}/parquet/, {run.out}/report/")
+    lines.append(f"  outputs: {run.out}/thermo.duckdb, {run.out}/parquet/, {run.out}/report/ "
+                 "(index.html, findings.json, junit.xml)")
     return "\n".join(lines) + "\n"

@@ -9,7 +9,7 @@ from pipeline.checks.formation import formation_reference_element, formation_sta
 from pipeline.constants import R
 from pipeline.thermo import evaluate, from_shomate
 from tests.builders import context, poly_record, table_record
-from tests.checks.gas_reference import GASES, config_from, gas_context, gas_poly, gas_table, run_checks
+from tests.checks.gas_reference import GASES, config_from, gas_context, gas_poly, run_checks
 
 
 def ref_meta(*species):
