@@ -51,6 +51,7 @@ DOCS: dict[str, tuple[str, dict[str, str]]] = {
         "stated_molar_mass_g_mol": "molar mass stated in species-csv [g/mol]",
         "reference_element": "true if the reference state of an element", "geometry": "atom | linear | nonlinear | null",
         "cas": "CAS registry number", "aliases": "';'-separated aliases",
+        "meta_source_id": "species-csv source that declared the species (null if none)",
         "preferred_record_id": "record used for curated properties", "preferred_reason": "why that record"}),
     "records": ("One row per species × source representation (polynomial or table).", {
         "record_id": "source_id/name[#k]", "species": "species key", "source_id": "manifest id",

@@ -369,6 +369,7 @@ def csv_line(fields) -> str:
 
 LOW_T_GRID = [10, 15, 20, 25, 30, 35, 40, 45, 50, 60, 70, 80, 90, 100, 110, 120, 140, 160, 180,
               200, 220, 240, 260, 280, 298.15, 300]
+MGO_GRID = LOW_T_GRID[:-2] + [T_REF, 300, 350, 400, 450, 500, 600, 700, 800, 900, 1000]
 
 
 def table_rows(model, grid, *, energy=1.0, formation=False, t_formation_min=200.0,
@@ -692,9 +693,8 @@ def build(out: Path, verbose: bool = True) -> dict:
         + write_table_csv(rows, units, cols_f)) + "\n"
 
     # ---- source 3c: MgO — planted 3: labelled J but the numbers are calories
-    mgo_grid = LOW_T_GRID[:-2] + [T_REF, 300, 350, 400, 450, 500, 600, 700, 800, 900, 1000]
     units_j = {"t": "K", "cp": "J/(mol*K)", "s": "J/(mol*K)", "h_minus_href": "J/mol", "gef": "J/(mol*K)"}
-    rows = [("MgO(cr)", table_rows(MGO, mgo_grid, energy=cal))]
+    rows = [("MgO(cr)", table_rows(MGO, MGO_GRID, energy=cal))]
     files["calorimetry/mgo_1958.csv"] = "\n".join(
         ["# TCL calorimetry group, MgO (1958; transcribed 1990) (INVENTED DATA)"]
         + write_table_csv(rows, units_j, cols)) + "\n"
@@ -706,7 +706,7 @@ def build(out: Path, verbose: bool = True) -> dict:
     files["README.md"] = readme_text(report)
 
     # self-checks: table integrals with a cubic spline (what a consumer will do)
-    report["table_spline_max_ds"] = _table_selfcheck(files, out)
+    report["table_spline_max_ds"] = _table_selfcheck()
     for rel, text in sorted(files.items()):
         path = out / rel
         path.parent.mkdir(parents=True, exist_ok=True)
@@ -716,11 +716,11 @@ def build(out: Path, verbose: bool = True) -> dict:
     return report
 
 
-def _table_selfcheck(files, out) -> float:
+def _table_selfcheck() -> float:
     """Largest |S(T) − S(T0) − ∫ spline(Cp)/T dT| over the J tables [J/(mol*K)]."""
     worst = 0.0
     for model, grid in ((MAGNESIUM, [0] + LOW_T_GRID), (GRAPHITE, LOW_T_GRID), (DIAMOND, LOW_T_GRID),
-                        (MGO, LOW_T_GRID[:-2] + [T_REF, 300, 350, 400, 450, 500, 600, 700, 800, 900, 1000])):
+                        (MGO, MGO_GRID)):
         t = np.array(grid, float)
         cp = np.array([float(f"{v:.7g}") for v in model.cp(t)])
         s = np.array([float(f"{v:.7g}") for v in model.s(t)])

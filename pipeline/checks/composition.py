@@ -43,7 +43,7 @@ def composition_molar_mass(ctx: CheckContext) -> pd.DataFrame:
     parts = []
     stated_sp = pd.to_numeric(sp.get("stated_molar_mass_g_mol"), errors="coerce")
     if stated_sp is not None:
-        src = sp["source_id"] if "source_id" in sp else pd.Series(None, index=sp.index, dtype=object)
+        src = sp["meta_source_id"] if "meta_source_id" in sp else pd.Series(None, index=sp.index, dtype=object)
         m = stated_sp.notna()
         parts.append(base[m].assign(stated=stated_sp[m].to_numpy(float), source_id=src[m].to_numpy(object),
                                     where="species list"))

@@ -139,8 +139,9 @@ def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
                       ("atom" if f.n_atoms == 1 else None)),
             cas=(m["cas"] if m is not None else None),
             aliases=(m["aliases"] if m is not None else ""),
+            meta_source_id=(m["source_id"] if m is not None else None),
         ))
     cols = ["species", "formula", "state", "label", "charge", "elements_json", "composition",
             "n_atoms", "molar_mass_g_mol", "stated_molar_mass_g_mol", "reference_element",
-            "geometry", "cas", "aliases"]
+            "geometry", "cas", "aliases", "meta_source_id"]
     return pd.DataFrame(rows, columns=cols)

@@ -172,3 +172,25 @@ def test_tabulated_species_macros_use_the_refit(release):
     assert np.all(np.abs(got["cp"] - cp) <= fit["max_abs_dcp_j_mol_k"].iloc[0] + 1e-3)  # + spline vs model
     assert np.all(np.abs(got["s"] - s) <= fit["max_abs_ds_j_mol_k"].iloc[0] + 1e-3)
     assert fit["max_rel_dcp"].iloc[0] < 0.005
+
+
+def test_a_table_no_fit_holds_is_reported_not_silently_fitted(tmp_path):
+    """A tabulated-only species whose Cp jumps by 20 % at 1500 K (a transition folded into
+    one table): its refit misses by far more than the export.fit-quality tolerances, and
+    the release says so as an error finding, while its fit is still stored in `fits`."""
+    from tests.curate.rawdata import build_release, table_csv, write_raw
+
+    t = np.concatenate([[T_REF], np.arange(300.0, 3000.1, 50.0)])
+    cp = np.where(t < 1500.0, 30.0, 36.0)
+    hmh = np.where(t < 1500.0, 30.0 * (t - T_REF), 30.0 * (1500 - T_REF) + 36.0 * (t - 1500.0))
+    s = 150.0 + np.where(t < 1500.0, 30.0 * np.log(t / T_REF),
+                         30.0 * np.log(1500 / T_REF) + 36.0 * np.log(t / 1500))
+    raw = write_raw(tmp_path / "raw", nasa7={}, tables=table_csv({"Ar(g)": (t, cp, hmh, s, None)}))
+    run = build_release(raw, tmp_path / "out")
+    f = run.findings[run.findings["check_id"] == "export.fit-quality"]
+    assert list(f["subject"]) == ["Ar(g)"] and list(f["severity"]) == ["error"]
+    with _con(tmp_path / "out") as con:
+        fit = con.execute("SELECT h298_basis, max_rel_dcp FROM fits").fetchall()
+        h = con.execute("SELECT h('Ar(g)', 1000), s('Ar(g)', 1000) FROM species").fetchall()[0]
+    assert fit[0][0] == "unknown (set to 0)" and fit[0][1] > 4 * 0.005
+    assert h[0] is None and h[1] is not None           # no ΔfH in the table: H and G unknown
