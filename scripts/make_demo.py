@@ -17,8 +17,10 @@ Fits (all by equality-constrained linear least squares on Cp/R, relative residua
 continuity of Cp and dCp/dT at every joint; H and S exact at 298.15 K and continuous at
 every joint through the integration constants):
 
-* NASA-7 (McBride, Gordon & Reno, NASA TM-4513, 1993): 200–1000–6000 K.
-* NASA-9 (McBride, Zehe & Gordon, NASA/TP-2002-211556, 2002): 200–1000–6000 K for gases.
+* NASA-7 (McBride, Gordon & Reno, NASA TM-4513, 1993): 200–1000–3500 K (combustion practice).
+* NASA-9 (McBride, Zehe & Gordon, NASA/TP-2002-211556, 2002): 200–1000–6000 K for gases,
+  200–1000–T_max for crystals, single intervals for Mg, ice and liquid water (the last two
+  with a cubic Cp only: a3–a6 free, so they extrapolate like the model).
 * Shomate (Shomate, J. Phys. Chem. 58 (1954) 368): 298–1200–6000 K.
 
 Beyond each outer end, model points from max(T_low/2, 50 K) to 1.5 T_high enter the fit
@@ -707,6 +709,10 @@ def build(out: Path, verbose: bool = True) -> dict:
 
     # self-checks: table integrals with a cubic spline (what a consumer will do)
     report["table_spline_max_ds"] = _table_selfcheck()
+    # guards: a spline through the tables must integrate to their S well inside the
+    # table.entropy-integral tolerance (0.05 J/(mol*K)); every clean fit within 2 % in Cp
+    assert report["table_spline_max_ds"] < 0.01, report["table_spline_max_ds"]
+    assert all(v["cp_rel"] < 0.02 for v in report["fits"].values()), report["fits"]
     for rel, text in sorted(files.items()):
         path = out / rel
         path.parent.mkdir(parents=True, exist_ok=True)

@@ -305,8 +305,8 @@ def render_html(run, findings: pd.DataFrame) -> str:
            '<a href="#network">Reaction network</a></nav>']
     verdict = ("blocks the release" if code else "passes") + f" at --fail-on {_e(run.fail_on)}"
     out.append(f'<div class="status {"fail" if code else "pass"}"><strong>This run {verdict}</strong> '
-               f"(exit code {code}): {n_err} error(s), {n_warn} warning(s), {n_info} info not waived; "
-               f"{len(waived)} waived.</div>")
+               f"(exit code {code}). Not waived: {n_err} error(s), {n_warn} warning(s), {n_info} info; "
+               f"waived: {len(waived)}.</div>")
     out.append(f'<p class="caution"><strong>Caution.</strong> {_e(CAUTION.removeprefix("Caution: "))}</p>')
 
     # ---- summary

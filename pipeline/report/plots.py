@@ -112,7 +112,7 @@ def _figure(sp: str, curves: list[dict], g_pref: np.ndarray, pref_id: str | None
     import matplotlib.patches
     from matplotlib.figure import Figure
 
-    rc = {"svg.fonttype": "none", "svg.hashsalt": salt, "font.size": 9, "font.family": "sans-serif",
+    rc = {"svg.fonttype": "none", "svg.hashsalt": salt, "font.size": 9,
           "axes.edgecolor": "#555555", "axes.linewidth": 0.6, "xtick.color": "#333333",
           "ytick.color": "#333333", "axes.titlesize": 9.5, "axes.titleweight": "bold"}
     with matplotlib.rc_context(rc):
@@ -155,6 +155,7 @@ def _figure(sp: str, curves: list[dict], g_pref: np.ndarray, pref_id: str | None
                     ax.text(0.5, 0.62, "one record: nothing to compare", transform=ax.transAxes,
                             ha="center", va="center", color="#5a5a5a")
                     ax.set_yticks([0.0])
+        axes[0].set_xlim(t_lo, t_hi)  # shared: bands at the range ends must not widen it
         for ax in axes[2:]:
             ax.set_xlabel("T  [K]")
         handles, labels = axes[0].get_legend_handles_labels()
