@@ -36,7 +36,7 @@ import pandas as pd
 from scipy.linalg import solve_banded
 
 from .constants import T_REF
-from .thermo import SegmentIndex
+from .thermo import SegmentIndex, evaluate
 
 #: A tabulated temperature within this of 298.15 K is the 298.15 K row [K].
 T_REF_MATCH_K = 5e-3
@@ -413,20 +413,29 @@ class RecordFunctions:
         """
         rid, t = np.broadcast_arrays(np.asarray(record_ids, dtype=object), np.asarray(t_k, float))
         shape = t.shape
-        rid, t = rid.ravel().astype(str), t.ravel()
+        rid, t = rid.ravel(), t.ravel()
         cp, h, s, hmh = (np.full(t.shape, np.nan) for _ in range(4))
-        kind = self.kind.reindex(rid).to_numpy()
+        # work on the distinct ids (hash factorisation), then broadcast back by code
+        codes, uniq = pd.factorize(rid)
+        uniq = np.asarray(uniq, dtype=object).astype(str)
+        kind_u = self.kind.reindex(uniq).to_numpy()
+        kind = kind_u[codes] if len(uniq) else np.empty(0, dtype=object)
         is_poly = kind == "polynomial"
         if is_poly.any():
-            ids, inv = np.unique(rid[is_poly], return_inverse=True)
-            p = self.seg_index.evaluate_records(rid[is_poly], t[is_poly])
-            h298 = self.seg_index.evaluate_records(ids, np.full(len(ids), T_REF)).h[inv]
+            si = self.seg_index
+            poly_u = np.flatnonzero(kind_u == "polynomial")
+            rank_u = np.zeros(len(uniq), dtype=int)
+            rank_u[poly_u] = si.rank_of(uniq[poly_u])
+            h298_u = np.full(len(uniq), np.nan)
+            h298_u[poly_u] = evaluate(si.coef[si.segment_for(rank_u[poly_u], np.full(len(poly_u), T_REF))], T_REF).h
+            rank = rank_u[codes[is_poly]]
+            p = evaluate(si.coef[si.segment_for(rank, t[is_poly])], t[is_poly])
             cp[is_poly], h[is_poly], s[is_poly] = p.cp, p.h, p.s
-            hmh[is_poly] = p.h - h298
+            hmh[is_poly] = p.h - h298_u[codes[is_poly]]
         is_tab = kind == "table"
         if is_tab.any():
             tb = self.tables
-            rank = tb.curves.rank_of(rid[is_tab])
+            rank = tb.curves.rank_of(uniq)[codes[is_tab]]
             cp[is_tab], h[is_tab], s[is_tab], hmh[is_tab] = tb.evaluate(rank, t[is_tab])
         g = h - t * s
         return Values(*(a.reshape(shape) for a in (cp, h, s, g, hmh)))

@@ -14,6 +14,8 @@ from .context import CheckContext
 from .registry import check
 
 CID = "duplicate.disagreement"
+#: Grid points compared per block (memory bound: a few tens of MB per block).
+BLOCK_POINTS = 500_000
 
 
 def record_pairs(ctx: CheckContext) -> pd.DataFrame:
@@ -103,6 +105,16 @@ def duplicate_disagreement(ctx: CheckContext) -> pd.DataFrame:
     tol = {k: ctx.tol(CID, k) for k in ("cp_rel", "s_j_mol_k", "h_j_mol", "g_j_mol", "error_factor",
                                         "ratio_rel", "cp_equal_rel", "atm_s_j_mol_k", "offset_h_j_mol",
                                         "offset_s_j_mol_k", "constant_rel", "grid_k")}
+    # blocks of about BLOCK_POINTS grid points, so memory stays bounded on large databases
+    n_pts = np.maximum(64, (pairs["hi"] - pairs["lo"]).to_numpy(float) / tol["grid_k"])
+    block = np.floor(np.cumsum(n_pts) / BLOCK_POINTS).astype(int)
+    parts = [_compare(ctx, pairs[block == b].reset_index(drop=True).assign(pair=lambda d: np.arange(len(d))), tol)
+             for b in np.unique(block)]
+    return pd.concat(parts, ignore_index=True) if parts else empty_findings()
+
+
+def _compare(ctx: CheckContext, pairs: pd.DataFrame, tol: dict) -> pd.DataFrame:
+    """Findings of one block of pairs (``pair`` = 0…n−1)."""
     grid = pair_grid(ctx, pairs, tol["grid_k"])
     p = grid["pair"].to_numpy()
     t = grid["t_k"].to_numpy(float)

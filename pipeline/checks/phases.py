@@ -23,6 +23,8 @@ from .registry import check
 #: (dΔG/dT = −ΔS, and ΔS changes slowly away from a transition), so 10 K brackets every
 #: crossing of curves that are not nearly tangent; bisection then refines it to 1e-6 K.
 GRID_K = 10.0
+#: Grid points evaluated per block (memory bound).
+BLOCK_POINTS = 500_000
 
 
 def species_forms(ctx: CheckContext) -> pd.DataFrame:
@@ -52,11 +54,11 @@ def species_values(ctx: CheckContext, forms: pd.DataFrame, idx: np.ndarray, t_k:
     range. A declared reference form whose table gives no ΔfH takes H(298.15) = 0, its
     definition."""
     idx, t = np.broadcast_arrays(np.asarray(idx), np.asarray(t_k, float))
-    f = forms.iloc[idx.ravel()]
+    i = idx.ravel()
     tt = t.ravel()
-    v = ctx.functions.evaluate(f["record_id"].to_numpy(object), tt)
-    inside = (tt >= f["t_low_k"].to_numpy(float) - 1e-6) & (tt <= f["t_high_k"].to_numpy(float) + 1e-6)
-    h = np.where(np.isnan(v.h) & f["reference_element"].to_numpy(bool), v.h_minus_h298, v.h)
+    v = ctx.functions.evaluate(forms["record_id"].to_numpy(object)[i], tt)
+    inside = (tt >= forms["t_low_k"].to_numpy(float)[i] - 1e-6) & (tt <= forms["t_high_k"].to_numpy(float)[i] + 1e-6)
+    h = np.where(np.isnan(v.h) & forms["reference_element"].to_numpy(bool)[i], v.h_minus_h298, v.h)
     nan = np.where(inside, 1.0, np.nan)
     s = v.s * nan
     h = h * nan
@@ -121,12 +123,14 @@ def _grid(lo: np.ndarray, hi: np.ndarray, spacing: float, extra: np.ndarray | No
 def phase_metastable(ctx: CheckContext) -> pd.DataFrame:
     """A form whose G lies above another form of the same composition over its whole range.
 
-    Relation: G_a(T) > G_b(T) at every T of a's range, with b defined over all of it
-    (same composition: same element counts and charge; species differing only in label
-    are such forms), so a is metastable with respect to b there; the smallest margin
-    min(G_a − G_b) and where it occurs are reported (e.g. diamond above graphite by about
-    2.9 kJ/mol at 298.15 K and 1 bar: Chase, *NIST-JANAF Thermochemical Tables*, 4th ed.,
-    1998). Compared on a grid ≤ 10 K apart.
+    Relation: at each T of form a's range, the lowest-G form of a's composition (same
+    element counts and charge: phases, polymorphs, isomers; species differing only in
+    label are such forms) is found; if at every T some other form has G_b(T) < G_a(T),
+    a is metastable over its whole range, and the smallest margin min_T(G_a − min_b G_b)
+    is reported with where it occurs and against which form (e.g. diamond above graphite
+    by about 2.9 kJ/mol at 298.15 K and 1 bar: Chase, *NIST-JANAF Thermochemical Tables*,
+    4th ed., 1998). Compared on a grid ≤ 10 K apart over a's range; a T where no other
+    form is defined makes a the stable form there.
     Tolerance: none — info, context for the curator (metastable phases are legitimate data).
     """
     cid = "phase.metastable"
@@ -137,35 +141,46 @@ def phase_metastable(ctx: CheckContext) -> pd.DataFrame:
         return empty_findings()
     fi = forms.assign(pos=np.arange(len(forms)))
     pairs = fi.merge(fi, on="composition", suffixes=("_a", "_b"))
-    pairs = pairs[pairs["species_a"] != pairs["species_b"]]
-    lo = np.maximum(pairs["t_low_k_a"].to_numpy(float), pairs["t_low_k_b"].to_numpy(float))
-    hi = np.minimum(pairs["t_high_k_a"].to_numpy(float), pairs["t_high_k_b"].to_numpy(float))
-    covers = (lo <= pairs["t_low_k_a"].to_numpy(float) + 1e-6) & (hi >= pairs["t_high_k_a"].to_numpy(float) - 1e-6)
-    pairs = pairs[covers & (hi > lo)].reset_index(drop=True)
-    if not len(pairs):
+    pairs = pairs[pairs["species_a"] != pairs["species_b"]].sort_values(["pos_a", "pos_b"]).reset_index(drop=True)
+    # blocks of whole forms a, about BLOCK_POINTS grid points each: memory stays bounded
+    n_pts = np.maximum(16, (pairs["t_high_k_a"] - pairs["t_low_k_a"]).to_numpy(float) / GRID_K)
+    first_of_a = np.r_[True, pairs["pos_a"].to_numpy()[1:] != pairs["pos_a"].to_numpy()[:-1]]
+    start_pts = np.cumsum(n_pts) - n_pts
+    block = np.maximum.accumulate(np.where(first_of_a, np.floor(start_pts / BLOCK_POINTS), 0)).astype(int)
+    sel = pd.concat([_margins(ctx, forms, pairs[block == b]) for b in np.unique(block)])
+    if not len(sel):
         return empty_findings()
+    a = forms.iloc[sel.index.to_numpy()]
+    return make_findings(
+        check_id=cid, severity="info", subject=a["species"], subject_kind="species",
+        source_id=a["source_id"], t_k=sel["t_k"], observed=sel["margin"], expected=0.0, tolerance=0.0,
+        unit="J/mol",
+        message=[f"{sp} lies above {b} in G over its whole range {lo:g}–{hi:g} K, by at least "
+                 f"{m / 1e3:.3f} kJ/mol (at {tm:g} K): metastable"
+                 for sp, b, lo, hi, m, tm in zip(a["species"], sel["below"], a["t_low_k"], a["t_high_k"],
+                                                sel["margin"], sel["t_k"])],
+        hint="a metastable form (legitimate); if it should be stable somewhere, its ΔfH or S is off")
+
+
+def _margins(ctx, forms, pairs) -> pd.DataFrame:
+    """For the forms a in ``pairs`` (all their pairs (a, b)): per grid T of a's range,
+    G_a − min_b G_b; a is kept when that is positive at every T. Index: position of a in
+    ``forms``; columns ``t_k, margin, below`` (the lowest form at the smallest margin)."""
     grid = _grid(pairs["t_low_k_a"].to_numpy(float), pairs["t_high_k_a"].to_numpy(float), GRID_K)
     i = grid["i"].to_numpy()
     t = grid["t_k"].to_numpy(float)
     ga = species_values(ctx, forms, pairs["pos_a"].to_numpy()[i], t)[3]
     gb = species_values(ctx, forms, pairs["pos_b"].to_numpy()[i], t)[3]
-    d = pd.DataFrame({"i": i, "t_k": t, "dg": ga - gb})
-    valid = d.groupby("i")["dg"].agg(lambda x: x.notna().all())
-    at_min = d.loc[d["dg"].fillna(-np.inf).groupby(d["i"]).idxmin()].set_index("i")
-    ok = valid & (at_min["dg"] > 0)
-    sel = at_min[ok.reindex(at_min.index, fill_value=False)]
-    if not len(sel):
-        return empty_findings()
-    p = pairs.iloc[sel.index.to_numpy()]
-    return make_findings(
-        check_id=cid, severity="info", subject=p["species_a"], subject_kind="species",
-        source_id=p["source_id_a"], t_k=sel["t_k"], observed=sel["dg"], expected=0.0, tolerance=0.0,
-        unit="J/mol",
-        message=[f"{a} lies above {b} in G over its whole range {lo:g}–{hi:g} K, by at least "
-                 f"{m / 1e3:.3f} kJ/mol (at {tm:g} K): metastable"
-                 for a, b, lo, hi, m, tm in zip(p["species_a"], p["species_b"], p["t_low_k_a"], p["t_high_k_a"],
-                                               sel["dg"], sel["t_k"])],
-        hint="a metastable form (legitimate); if it should be stable somewhere, its ΔfH or S is off")
+    d = pd.DataFrame({"a": pairs["pos_a"].to_numpy()[i], "b": pairs["species_b"].to_numpy(object)[i],
+                      "t_k": t, "ga": ga, "dg": ga - gb})
+    # the lowest other form at each (a, T): the largest G_a − G_b
+    best = d.dropna(subset=["dg"]).sort_values(["a", "t_k", "dg"]).groupby(["a", "t_k"]).tail(1)
+    # every T of a's range where a itself is defined must have some lower form
+    need = d.dropna(subset=["ga"]).drop_duplicates(["a", "t_k"])
+    best = need[["a", "t_k"]].merge(best[["a", "t_k", "dg", "b"]], on=["a", "t_k"], how="left")
+    worst = best.sort_values(["a", "dg"], na_position="first").groupby("a").head(1).set_index("a")
+    worst = worst[worst["dg"] > 0]
+    return worst.rename(columns={"dg": "margin", "b": "below"})[["t_k", "margin", "below"]]
 
 
 def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
@@ -193,7 +208,7 @@ def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
     return out[same.to_numpy()].reset_index(drop=True)
 
 
-def _delta(ctx, forms, pos, tr, t):
+def _delta(ctx, forms, tr, t):
     """ν(G_prod − G_react) [J/mol] and ν(S_prod − S_react) [J/(mol*K)] at t."""
     _, _, sp, gp = species_values(ctx, forms, tr["p_pos"].to_numpy(), t)
     _, _, sr, gr = species_values(ctx, forms, tr["r_pos"].to_numpy(), t)
@@ -258,7 +273,7 @@ def _crossings(ctx, cid, forms, tr) -> pd.DataFrame:
     if len(idx):
         g = _grid(lo[idx], hi[idx], GRID_K, extra=t_st[idx])
         sub = tr.iloc[idx[g["i"].to_numpy()]]
-        dg, _ = _delta(ctx, forms, None, sub, g["t_k"].to_numpy(float))
+        dg, _ = _delta(ctx, forms, sub, g["t_k"].to_numpy(float))
         g["dg"] = dg
         nxt = g.shift(-1)
         br = g[(g["i"] == nxt["i"]) & (np.sign(g["dg"]) * np.sign(nxt["dg"]) <= 0)
@@ -270,10 +285,10 @@ def _crossings(ctx, cid, forms, tr) -> pd.DataFrame:
             which = idx[br["i"].to_numpy()]
             a, b = br["t_k"].to_numpy(float), br["t_b"].to_numpy(float)
             sub = tr.iloc[which]
-            fa, _ = _delta(ctx, forms, None, sub, a)
+            fa, _ = _delta(ctx, forms, sub, a)
             for _ in range(60):                              # bisection, all transitions at once
                 mid = (a + b) / 2
-                fm, _ = _delta(ctx, forms, None, sub, mid)
+                fm, _ = _delta(ctx, forms, sub, mid)
                 left = np.sign(fm) == np.sign(fa)
                 a, fa = np.where(left, mid, a), np.where(left, fm, fa)
                 b = np.where(left, b, mid)
@@ -286,7 +301,7 @@ def _crossings(ctx, cid, forms, tr) -> pd.DataFrame:
     if est.any():
         te = np.clip(t_st[est], lo[est], hi[est])
         sub = tr[est]
-        dg, ds = _delta(ctx, forms, None, sub, te)
+        dg, ds = _delta(ctx, forms, sub, te)
         with np.errstate(divide="ignore", invalid="ignore"):
             t_x[est] = te + dg / ds
         how[est] = [f"no crossing inside the common range; first-order estimate from ΔG = {a:.4g} J/mol "
@@ -328,7 +343,7 @@ def _enthalpies(ctx, cid, forms, stated, drh) -> pd.DataFrame:
     if not len(m):
         return empty_findings()
     t = m["t_k"].to_numpy(float)
-    _, ds = _delta(ctx, forms, None, m, t)
+    _, ds = _delta(ctx, forms, m, t)
     expected = t * ds
     u = m["uncertainty"].to_numpy(float)
     with np.errstate(divide="ignore", invalid="ignore"):

@@ -153,7 +153,7 @@ def _finding_rows(df: pd.DataFrame, new: set, plotted: set) -> str:
     rows = []
     for r in df.itertuples(index=False):
         src = _src(r.source_id)
-        subj = _e(r.subject)
+        subj = _e(r.subject).replace("+", "+<wbr>").replace(":", ":<wbr>")  # long cycle ids wrap
         if r.subject in plotted:
             subj = f'<a href="#{species_anchor(r.subject)}">{subj}</a>'
         tags = ""
@@ -217,7 +217,7 @@ def _counts_table(live: pd.DataFrame, waived: pd.DataFrame, by: str, label: str,
 
 def _generic_table(df: pd.DataFrame, max_rows: int = 100) -> str:
     cols = list(df.columns)
-    head = "".join(f"<th>{_e(c)}</th>" for c in cols)
+    head = "".join(f"<th>{_e(c).replace('_', '_<wbr>')}</th>" for c in cols)
     body = []
     for row in df.head(max_rows).itertuples(index=False):
         cells = []

@@ -7,7 +7,6 @@ mistake applied.
 from __future__ import annotations
 
 import numpy as np
-import pandas as pd
 import pytest
 
 from pipeline.checks import registry
@@ -169,3 +168,20 @@ def test_no_common_range_no_comparison():
     a = table_record("N2(g)", "alpha", cols["t_k"][lo], cp_j_mol_k=cols["cp_j_mol_k"][lo])
     b = table_record("N2(g)", "beta", cols["t_k"][~lo], cp_j_mol_k=cols["cp_j_mol_k"][~lo] * 2)
     assert _run(context(tables=[a, b])).empty
+
+
+def test_blocks_give_the_same_findings(monkeypatch):
+    """Pairs are compared in blocks of grid points (bounded memory): tiny blocks, same result."""
+    from pipeline.checks import duplicates
+
+    recs = []
+    for s in ("N2(g)", "O2(g)", "Ar(g)"):
+        cols = ct.columns(s)
+        recs.append(table_record(s, "alpha", cols["t_k"], **{k: v for k, v in cols.items() if k != "t_k"}))
+        other = _scaled(1000.0)({k: v.copy() for k, v in cols.items()}) if s != "O2(g)" else cols
+        recs.append(table_record(s, "beta", cols["t_k"], **{k: v for k, v in other.items() if k != "t_k"}))
+    whole = _run(context(tables=recs))
+    monkeypatch.setattr(duplicates, "BLOCK_POINTS", 50)
+    blocked = _run(context(tables=recs))
+    assert list(blocked["subject"]) == list(whole["subject"]) == ["N2(g)", "Ar(g)"]
+    assert list(blocked["hint"]) == list(whole["hint"])

@@ -199,3 +199,20 @@ def test_reversed_equation_and_different_composition():
     out = _run(water(reactions=rx), "phase.transition-mismatch")
     assert list(out["severity"]) == ["error"]
     assert out["observed"].iloc[0] == pytest.approx(T_FUS, abs=0.01)
+
+
+def test_metastable_in_blocks_and_against_the_lowest_form_per_temperature(monkeypatch):
+    """With tiny blocks the result is unchanged; a form above one form in part of its range
+    and above another elsewhere is still metastable (lowest-G form per temperature)."""
+    from pipeline.checks import phases
+
+    low = poly_record("C(cr,graphite)", "janaf", [(200.0, 600.0, GRAPHITE)])
+    high = poly_record("C(cr,hexagonal)", "x", [(550.0, 1000.0, segment((14.0, 0.01, 0.0), -5000.0, 5.0))])
+    dia = poly_record("C(cr,diamond)", "janaf", [(T_REF, 1000.0, DIAMOND)])
+    ctx = context(poly=[low, high, dia], species_meta=meta("C(cr,graphite)"))
+    whole = _run(ctx, "phase.metastable")
+    monkeypatch.setattr(phases, "BLOCK_POINTS", 10)
+    blocked = _run(ctx, "phase.metastable")
+    assert "C(cr,diamond)" in list(whole["subject"])
+    assert list(blocked["subject"]) == list(whole["subject"])
+    assert blocked["observed"].to_numpy() == pytest.approx(whole["observed"].to_numpy())
