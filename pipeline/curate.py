@@ -141,8 +141,8 @@ def _comment_sql(text: str) -> str:
     return "'" + text.replace("'", "''") + "'"
 
 
-def _column_doc(table: str, col: str) -> str:
-    docs = DOCS.get(table, ("", {}))[1]
+def _column_doc(table: str, col: str, docs: dict | None = None) -> str:
+    docs = (docs or DOCS).get(table, ("", {}))[1]
     if col in docs:
         return docs[col]
     if col.startswith("uncertainty_"):
@@ -154,8 +154,10 @@ def _column_doc(table: str, col: str) -> str:
     return col.replace("_", " ")
 
 
-def write_table(con: duckdb.DuckDBPyConnection, name: str, df: pd.DataFrame) -> None:
-    """Create ``name`` from ``df`` and attach table and column comments."""
+def write_table(con: duckdb.DuckDBPyConnection, name: str, df: pd.DataFrame, docs: dict | None = None) -> None:
+    """Create ``name`` from ``df`` and attach table and column comments (``docs``, default
+    :data:`DOCS`; an undocumented column gets a comment built from its name and unit)."""
+    docs = docs or DOCS
     df = df.copy()
     for c in df.columns:
         if df[c].dtype == object:
@@ -169,9 +171,10 @@ def write_table(con: duckdb.DuckDBPyConnection, name: str, df: pd.DataFrame) -> 
     con.register("_frame", df)
     con.execute(f'CREATE OR REPLACE TABLE "{name}" AS SELECT * FROM _frame')
     con.unregister("_frame")
-    con.execute(f'COMMENT ON TABLE "{name}" IS {_comment_sql(DOCS.get(name, (name, {}))[0] or name)}')
+    table_doc = docs.get(name, ("", {}))[0] or f"{name.replace('_', ' ')} (side table of a pipeline stage)"
+    con.execute(f'COMMENT ON TABLE "{name}" IS {_comment_sql(table_doc)}')
     for c in df.columns:
-        con.execute(f'COMMENT ON COLUMN "{name}"."{c}" IS {_comment_sql(_column_doc(name, c))}')
+        con.execute(f'COMMENT ON COLUMN "{name}"."{c}" IS {_comment_sql(_column_doc(name, c, docs))}')
 
 
 def previous_release(out: Path) -> dict[str, pd.DataFrame]:
@@ -207,13 +210,18 @@ def _pid_alive(pid: int) -> bool:
 
 
 def remove_stale_builds(out: Path) -> None:
-    """Remove build folders of runs that died before publishing (their pid is gone)."""
-    for d in out.glob(BUILD_PREFIX + "*"):
+    """Remove what runs that died before publishing left behind (their pid is gone): build
+    folders and the temporary links of an interrupted switch."""
+    for d in [*out.glob(BUILD_PREFIX + "*"), *out.glob(".current-*"), *out.glob(".*.link-*")]:
         try:
             pid = int(d.name.rsplit("-", 1)[1])
         except (IndexError, ValueError):
             continue
-        if pid != os.getpid() and not _pid_alive(pid):
+        if pid == os.getpid() or _pid_alive(pid):
+            continue
+        if d.is_symlink() or d.is_file():
+            d.unlink()
+        else:
             shutil.rmtree(d, ignore_errors=True)
 
 
@@ -296,10 +304,17 @@ def write_release(run) -> None:
         derive(run)
     tables = curated_tables(run, prev)
     con = duckdb.connect(str(bdir / "thermo.duckdb"))
+    # a stage that adds a side table may document it: run.extra["table_docs"][name] = (text, {col: text})
+    docs = dict(DOCS)
+    for name, (text, cols) in (run.extra.get("table_docs") or {}).items():
+        old_text, old_cols = docs.get(name, ("", {}))
+        docs[name] = (text or old_text, {**old_cols, **cols})
     try:
+        con.execute("BEGIN TRANSACTION")  # one commit for every table, comment and macro
         for name, df in tables.items():
-            write_table(con, name, df)
+            write_table(con, name, df, docs)
         macros.install(con)
+        con.execute("COMMIT")
         for hook in run.extra.get("post_sql") or []:
             hook(con, run)
         pause = float(os.environ.get(PAUSE_ENV, "0") or 0)
@@ -320,7 +335,7 @@ def _sorted(df: pd.DataFrame, keys: list[str] | None = None) -> pd.DataFrame:
     if not len(df):
         return df.reset_index(drop=True)
     cols = list(dict.fromkeys((keys or []) + list(df.columns)))
-    key = pd.DataFrame({c: (df[c].map(lambda v: "" if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+    key = pd.DataFrame({c: (df[c].astype("string").fillna("")
                             if df[c].dtype == object or str(df[c].dtype) in ("string", "str") else df[c])
                         for c in cols}, index=df.index)
     order = key.sort_values(cols, kind="stable", na_position="first").index
@@ -432,7 +447,10 @@ def publish(run) -> None:
             aside = out / f".old-{name}-{item}"
             os.replace(link, aside)
             os.replace(tmp, link)
-            shutil.rmtree(aside, ignore_errors=True) if aside.is_dir() else aside.unlink()
+            if aside.is_dir():
+                shutil.rmtree(aside, ignore_errors=True)
+            else:
+                aside.unlink()
         else:
             os.replace(tmp, link)
     _prune_releases(releases, keep={name})

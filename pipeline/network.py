@@ -106,12 +106,13 @@ def _as_fraction(x) -> Fraction:
     return Fraction(x).limit_denominator(1000) if not isinstance(x, Fraction) else x
 
 
-def _int_row(row: Mapping) -> dict:
+def _int_row(row: Mapping) -> tuple[dict, int]:
+    """(integer row, the factor it was multiplied by): the row times its denominators' LCM."""
     fr = {k: _as_fraction(v) for k, v in row.items() if v != 0}
     den = 1
     for f in fr.values():
         den = den * f.denominator // math.gcd(den, f.denominator)
-    return {k: int(f * den) for k, f in fr.items()}
+    return {k: int(f * den) for k, f in fr.items()}, den
 
 
 def _axpy(a: int, x: dict, b: int, y: dict) -> dict:
@@ -162,10 +163,11 @@ def cycle_basis(rows: Sequence[Mapping], *, shorten: bool = True) -> list[dict[i
     shorten : run the shortening pass.
     """
     cols: dict = {}
-    int_rows = []
+    int_rows, factor = [], []
     for r in rows:
-        ir = _int_row(r)
+        ir, den = _int_row(r)
         int_rows.append({cols.setdefault(k, len(cols)): v for k, v in ir.items()})
+        factor.append(den)
     order = sorted(range(len(int_rows)), key=lambda i: (len(int_rows[i]), i))
     pivots: dict[int, tuple[dict, dict]] = {}
     cycles: list[dict[int, int]] = []
@@ -185,6 +187,7 @@ def cycle_basis(rows: Sequence[Mapping], *, shorten: bool = True) -> list[dict[i
             g = _content(vec, comb)
             vec, comb = _scaled(vec, g), _scaled(comb, g)
         else:
+            comb = {k: c * factor[k] for k, c in comb.items()}   # back to the rows as given
             cycles.append(_scaled(comb, _content(comb)))
     if shorten:
         cycles = _shorten(cycles)
@@ -472,7 +475,7 @@ class _Component:
         self.events: list[SetAside] = []
         self.stopped_early = ""
         self._null_info = None   # (determined, null_dim): invariant under removals with h < 1
-        self._probes = None      # iterative path: (var per species, _RowMap of 1 − h per datum)
+        self._probes = None      # iterative path: (var per species, _RowMap of 1 − h per datum, Y)
         self.x = np.zeros(self.n)
 
     def _system(self):
@@ -557,22 +560,24 @@ class _Component:
         Y = block_pcg(self.M, self.J.T @ G, self.dinv, rtol=1e-7)
         var = (Y ** 2).mean(axis=1)
         one_minus_h = ((G - self.J @ Y) ** 2).mean(axis=1)
-        return var, _RowMap(self.m, self.n, self.im, self.ip, one_minus_h)
+        return var, _RowMap(self.m, self.n, self.im, self.ip, one_minus_h), Y
 
     def _exact_h(self, rows: np.ndarray) -> np.ndarray:
         B = self.J[rows].T.toarray()
         Y = block_pcg(self.M, B, self.dinv, rtol=1e-9)
         return np.clip((B * Y).sum(axis=0), 0.0, 1.0)
 
-    def _pred_var(self, a: np.ndarray) -> float:
-        """a·Cov(x̂)·a for a combination a that the fit determines."""
-        if not self.n or not np.any(a):
-            return 0.0
+    def _pred_vars(self, Ak) -> np.ndarray:
+        """a·Cov(x̂)·a for each row a of sparse ``Ak`` (combinations the fit determines).
+
+        Exact path: ‖(a∘d) V S⁻¹‖². Iterative path: the randomised estimate
+        mean_s (a·Y_s)², since Cov(Y_s) = M⁺ for the probe solutions Y = M⁺JᵀG."""
+        if not self.n:
+            return np.zeros(Ak.shape[0])
         if self.dense:
-            w = (a * self._d) @ self._VrS
-            return float(w @ w)
-        y = block_pcg(self.M, a[:, None], self.dinv, rtol=1e-12)[:, 0]
-        return float(a @ y)
+            W = (Ak.toarray() * self._d) @ self._VrS
+            return (W ** 2).sum(axis=1)
+        return ((Ak @ self._probes[2]) ** 2).mean(axis=1)
 
     # ---- the loop's choice
     def worst(self, z_max: float) -> list:
@@ -632,7 +637,7 @@ class _Component:
     # ---- final numbers
     def final(self) -> dict:
         """Outputs of the last fit (the loop ends on a refit of the final data set)."""
-        if not self.dense and self.n:
+        if not self.dense and self.n and self.events:
             self._probes = self._probe()     # fresh estimates for the final data set
             self.var = self._probes[0]
             self.h = np.clip(1.0 - self._probes[1].at(self.im, self.ip), 0.0, 1.0)
@@ -647,18 +652,24 @@ class _Component:
         std[self.im] = np.where(untestable[self.im], np.nan,
                                 self.res_w[:nm] / np.sqrt(np.maximum(om, 1e-300)))
         lev[self.im] = hm
-        for e in self.events:
-            if e.kind == "measurement":
-                a = self.A[e.index].toarray().ravel()
-                e.r_after_j_mol = float(self.v[e.index] - (a @ self.x if self.n else 0.0))
-                e.z_after = e.r_after_j_mol / math.sqrt(self.u[e.index] ** 2 + self._pred_var(a))
-                residual[e.index] = e.r_after_j_mol
-                std[e.index] = e.z_after
-            else:
-                a = np.zeros(self.n)
-                a[e.index] = 1.0
-                e.r_after_j_mol = float(self.p[e.index] - self.x[e.index])
-                e.z_after = e.r_after_j_mol / math.sqrt(self.ps[e.index] ** 2 + self._pred_var(a))
+        # set-aside data against the final fit: residual and z = r / √(u² + a·Cov·a)
+        ev_m = [e for e in self.events if e.kind == "measurement"]
+        ev_p = [e for e in self.events if e.kind == "prior"]
+        if ev_m:
+            k = np.array([e.index for e in ev_m])
+            Ak = self.A[k]
+            r = self.v[k] - (Ak @ self.x if self.n else 0.0)
+            z = r / np.sqrt(self.u[k] ** 2 + self._pred_vars(Ak))
+            residual[k], std[k] = r, z
+            for e, ri, zi in zip(ev_m, r, z):
+                e.r_after_j_mol, e.z_after = float(ri), float(zi)
+        if ev_p:
+            k = np.array([e.index for e in ev_p])
+            Ak = sp.csr_matrix((np.ones(len(k)), (np.arange(len(k)), k)), shape=(len(k), self.n))
+            r = self.p[k] - self.x[k]
+            z = r / np.sqrt(self.ps[k] ** 2 + self._pred_vars(Ak))
+            for e, ri, zi in zip(ev_p, r, z):
+                e.r_after_j_mol, e.z_after = float(ri), float(zi)
         sd = np.sqrt(np.maximum(self.var, 0.0))
         return dict(x=self.x, sd=sd, determined=self.det, residual=residual, std_residual=std,
                     leverage=lev, untestable=untestable, chi2=self.chi2, dof=self.dof)

@@ -19,8 +19,21 @@ import typer
 from .sql import open_read_only
 
 #: duplicate.disagreement warning limits (checks.md): Cp relative, S [J/(mol*K)],
-#: H − H298 [J/mol], G [J/mol].
+#: H − H298 [J/mol], G [J/mol]. ``diff --config`` reads that check's overrides.
 TOLERANCES = {"cp_rel": 0.02, "s_j_mol_k": 1.0, "h_minus_h298_j_mol": 1000.0, "g_j_mol": 1000.0}
+
+
+def tolerances(config: Path | None) -> dict:
+    """The duplicate.disagreement tolerances in force (defaults, or the --config file's)."""
+    from ..checks import registry
+    from ..config import Config
+
+    cfg = Config.load(config)
+    cid = "duplicate.disagreement"
+    if registry.spec_for(cid) is None:
+        return dict(TOLERANCES)
+    return {"cp_rel": cfg.tol(cid, "cp_rel"), "s_j_mol_k": cfg.tol(cid, "s_j_mol_k"),
+            "h_minus_h298_j_mol": cfg.tol(cid, "h_j_mol"), "g_j_mol": cfg.tol(cid, "g_j_mol")}
 
 
 def _read(db: Path) -> dict[str, pd.DataFrame]:
@@ -73,9 +86,17 @@ def compare(old: dict[str, pd.DataFrame], new: dict[str, pd.DataFrame], tol: dic
 def diff(
     old: Path = typer.Argument(..., help="the older release's thermo.duckdb"),
     new: Path = typer.Argument(..., help="the newer release's thermo.duckdb"),
+    config: Path = typer.Option(None, "--config", help="TOML file overriding duplicate.disagreement tolerances"),
 ) -> None:
     """What changed between two releases beyond the duplicate.disagreement tolerances."""
-    d = compare(_read(old), _read(new))
+    from ..errors import ThermoledgerError
+
+    try:
+        tol = tolerances(config)
+    except ThermoledgerError as exc:
+        typer.echo(f"thermoledger: {exc}", err=True)
+        raise typer.Exit(2)
+    d = compare(_read(old), _read(new), tol)
     w = sys.stdout.write
     w(f"species added: {len(d['added'])}\n" + "".join(f"  + {k}\n" for k in d["added"]))
     w(f"species removed: {len(d['removed'])}\n" + "".join(f"  - {k}\n" for k in d["removed"]))

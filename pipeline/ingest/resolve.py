@@ -88,8 +88,11 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         if key is None and isinstance(row.species_hint, str) and row.species_hint:
             key = row.species_hint
         if key is None:
+            charge = 0 if pd.isna(row.charge) else int(row.charge)
             key, ok = build_key(row.name, row.state, row.label if isinstance(row.label, str) else None,
-                                elements, int(row.charge or 0))
+                                elements, charge)
+            if key.lower() in amap:          # the built key may itself be a declared alias
+                key, ok = amap[key.lower()], True
             if not ok:
                 warn_rows.append((row.record_id, key, row.source_id, row.name))
         reason = None

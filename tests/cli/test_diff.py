@@ -28,3 +28,19 @@ def test_changes_beyond_tolerance_exit_1(tmp_path, release):
     changed = [ln for ln in r.stdout.splitlines() if ln.startswith("  H2O(g)")]
     assert changed and all("g_j_mol" in ln for ln in changed)
     assert "findings appeared" in r.stdout
+
+
+def test_config_overrides_the_tolerance(tmp_path, release):
+    """With the G tolerance raised to 3 kJ/mol (duplicate.disagreement g_j_mol override),
+    the 2 kJ/mol ΔfH shift is no longer a change beyond tolerance."""
+    _, old = release
+    raw = standard_raw(tmp_path / "raw")
+    main = "\n".join([model_nasa7("H2(g)"), model_nasa7("O2(g)"), model_nasa7("H2O(g)", dh=2000.0)])
+    (raw / "main.nasa7").write_text("THERMO\n   200.000  1000.000  5000.000\n" + main + "\nEND\n")
+    build_release(raw, tmp_path / "new")
+    cfg = tmp_path / "tol.toml"
+    cfg.write_text('[checks."duplicate.disagreement"]\ng_j_mol = 3000.0\n')
+    r = thermoledger("diff", old / "thermo.duckdb", tmp_path / "new" / "thermo.duckdb", "--config", cfg)
+    assert r.returncode == 0, r.stdout + r.stderr
+    r = thermoledger("diff", old / "thermo.duckdb", tmp_path / "new" / "thermo.duckdb")
+    assert r.returncode == 1

@@ -88,3 +88,26 @@ def test_a_run_killed_during_emit_leaves_the_previous_release(tmp_path):
     species, n_runs, _ = _snapshot(out / "thermo.duckdb")
     assert "O3(g)" in species and n_runs == 2
     assert not list(out.glob(".build-*"))
+
+
+def test_a_release_in_the_plain_layout_is_taken_over(tmp_path):
+    """An output folder holding plain items (thermo.duckdb, parquet/, report/ as real files,
+    e.g. from an older version) is switched to the linked layout by the next run."""
+    import shutil
+
+    out = tmp_path / "curated"
+    raw = standard_raw(tmp_path / "raw")
+    build_release(raw, out)
+    for item in ("thermo.duckdb", "parquet", "report"):
+        real = (out / item).resolve()
+        (out / item).unlink()
+        (shutil.copytree if real.is_dir() else shutil.copy2)(real, out / item)
+    (out / ".current").unlink()
+    shutil.rmtree(out / ".releases")
+    assert not (out / "thermo.duckdb").is_symlink()
+    before = _snapshot(out / "thermo.duckdb")
+    build_release(raw, out)
+    after = _snapshot(out / "thermo.duckdb")
+    assert (out / "thermo.duckdb").is_symlink() and (out / ".current").is_symlink()
+    assert after[0] == before[0] and after[1] == before[1] + 1
+    assert not [p for p in out.iterdir() if p.name.startswith(".old-")]

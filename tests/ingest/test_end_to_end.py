@@ -161,3 +161,15 @@ def test_unlisted_file_warned(release):
     f = release["findings"]
     hit = f[(f["check_id"] == "schema.unlisted-file") & (f["subject"] == "forgotten.csv")]
     assert list(hit["severity"]) == ["warning"]
+
+
+def test_energy_column_without_unit_exits_2(tmp_path):
+    raw = tmp_path / "raw"
+    raw.mkdir()
+    (raw / "t.csv").write_text("species,t,cp,dfh\nHe(g),298.15,20.786,0\n")
+    (raw / "sources.toml").write_text('[[source]]\nid = "tab"\npath = "t.csv"\nformat = "table-csv"\n')
+    proc = subprocess.run(thermoledger() + ["run", "--raw", str(raw), "--out", str(tmp_path / "out")],
+                          capture_output=True, text=True, timeout=300)
+    assert proc.returncode == 2
+    assert "found column 'cp' without a unit in t.csv:1" in proc.stderr
+    assert "energy_unit = \"kJ\" to source 'tab'" in proc.stderr

@@ -113,3 +113,19 @@ def test_temperature_must_be_kelvin(tmp_path):
                           [["a", "H2(g) = 2 H(g)", "log_k", 25, 1, 0.1]]))
     with pytest.raises(InputError, match="temperature column"):
         reactions_csv.read(p, source("reactions-csv"), "r.csv")
+
+
+def test_round_trip(tmp_path):
+    import numpy as np
+
+    rng = np.random.default_rng(2)
+    vals = rng.normal(0, 3e5, 6)
+    unc = rng.uniform(1, 500, 6)
+    rows = [[f"x{i}", "CH4(g) + 2 O2(g) = CO2(g) + 2 H2O(g)", "drh", 298.15, float(v), "J/mol", float(u), "s1", "m"]
+            for i, (v, u) in enumerate(zip(vals, unc))]
+    p = tmp_path / "r.csv"
+    p.write_text(csv_text(HEADER + ["series"], [r[:6] + [r[6], r[8], r[7]] for r in rows]))
+    r = reactions_csv.read(p, source("reactions-csv"), "r.csv")
+    np.testing.assert_array_equal(r.reactions["value"].to_numpy(float), vals)
+    np.testing.assert_array_equal(r.reactions["uncertainty"].to_numpy(float), unc)
+    assert (r.reactions["series"] == "s1").all() and (r.reactions["method"] == "m").all()
