@@ -564,7 +564,7 @@ class _Component:
 
     def _exact_h(self, rows: np.ndarray) -> np.ndarray:
         B = self.J[rows].T.toarray()
-        Y = block_pcg(self.M, B, self.dinv, rtol=1e-9)
+        Y = block_pcg(self.M, B, self.dinv, rtol=1e-8)
         return np.clip((B * Y).sum(axis=0), 0.0, 1.0)
 
     def _pred_vars(self, Ak) -> np.ndarray:
@@ -584,8 +584,8 @@ class _Component:
         """Data to set aside next, largest |t| first: [(kind, index, t, residual [J/mol])].
 
         Exact path: the single datum with the largest |t|. Iterative path: t from the
-        randomised leverages, exact for the most suspicious ``N_CANDIDATES`` (and for up to
-        64 beyond z_max); of the data beyond z_max, every one that has the largest |t|
+        randomised leverages, exact for the ``N_CANDIDATES`` largest estimated |t| and
+        largest |r/u|; of the data beyond z_max, every one that has the largest |t|
         within two steps of the network (data sharing a species with a datum that shares
         a species with it) — gross errors far apart do not affect each other's residuals,
         so they are set aside in one step, as serial elimination would, while neighbours
@@ -595,9 +595,8 @@ class _Component:
         testable = one_minus > H_ONE
         t = np.where(testable, self.res_w / np.sqrt(np.where(testable, one_minus, 1.0)), 0.0)
         if not self.dense and self.n and len(t):
-            n_flag = int((np.abs(t) > z_max).sum())
             cand = np.unique(np.concatenate([
-                np.argsort(-np.abs(t), kind="stable")[:max(N_CANDIDATES, min(n_flag, 64))],
+                np.argsort(-np.abs(t), kind="stable")[:N_CANDIDATES],
                 np.argsort(-np.abs(self.res_w), kind="stable")[:N_CANDIDATES]]))
             om = 1.0 - self._exact_h(cand)
             ok = om > H_ONE
@@ -708,6 +707,29 @@ def block_pcg(M, B: np.ndarray, dinv: np.ndarray, *, x0: np.ndarray | None = Non
     X = np.zeros((n, k)) if x0 is None else np.array(x0, float, copy=True)
     if n == 0 or k == 0:
         return X
+    maxiter = maxiter or min(20 * n + 100, 20000)
+    R = B - M @ X
+    tol2 = (rtol * np.where((bn := np.linalg.norm(B, axis=0)) > 0, bn, 1.0)) ** 2
+    d = dinv[:, None]
+    Z = d * R
+    P = Z.copy()
+    rz = np.einsum("ij,ij->j", R, Z)
+    for _ in range(maxiter):
+        if np.all(np.einsum("ij,ij->j", R, R) <= tol2):
+            break
+        Q = M @ P
+        pq = np.einsum("ij,ij->j", P, Q)
+        alpha = np.divide(rz, pq, out=np.zeros(k), where=pq > 0)
+        X += alpha * P
+        Q *= alpha
+        R -= Q
+        np.multiply(d, R, out=Z)
+        rz_new = np.einsum("ij,ij->j", R, Z)
+        beta = np.divide(rz_new, rz, out=np.zeros(k), where=rz > 0)
+        P *= beta
+        P += Z
+        rz = rz_new
+    return X
     maxiter = maxiter or min(20 * n + 100, 20000)
     Rm = B - M @ X
     bnorm = np.linalg.norm(B, axis=0)

@@ -202,7 +202,8 @@ def _accounting(run: Run) -> None:
         run.add_findings(make_findings(
             check_id="schema.rejected", severity="error",
             subject=[f"{f}:{l}" for f, l in zip(rej["file"], rej["line"])], subject_kind="source",
-            source_id=rej["source_id"], message=[f"{f}:{l}: {r}" for f, l, r in zip(rej["file"], rej["line"], rej["reason"])],
+            source_id=rej["source_id"], message=[r if f"{f}:{l}" in str(r) else f"{f}:{l}: {r}"
+                     for f, l, r in zip(rej["file"], rej["line"], rej["reason"])],
             hint="the record is kept verbatim in the rejected table"))
 
 

@@ -154,7 +154,7 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
                 problem = str(exc)
         if problem is not None:
             rejected.append(rejected_row(source.id, rel, start + 1, "\n".join(block),
-                                         f"nasa7 record at line {start + 1}: {problem} — fix: "
+                                         f"{rel}:{start + 1}: nasa7 record: {problem} — fix: "
                                          "correct the record (columns per NASA TM-4513)"))
             i += len(block)
             continue

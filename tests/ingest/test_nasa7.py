@@ -34,7 +34,7 @@ def test_malformed_record_is_rejected_and_the_rest_loaded():
     assert r.n_read == 4 and len(r.rejected) == 1
     bad = r.rejected.iloc[0]
     assert (bad["file"], bad["line"]) == ("legacy/mixed.nasa7", 8)
-    assert bad["reason"].startswith("nasa7 record at line 8: unparsable line 3 coefficient 2 '5x.xx52800E+00' "
+    assert bad["reason"].startswith("legacy/mixed.nasa7:8: nasa7 record: unparsable line 3 coefficient 2 '5x.xx52800E+00' "
                                     "in columns 16-30")
     assert "fix:" in bad["reason"]
     assert bad["raw_text"].count("\n") == 3 and bad["raw_text"].startswith("O2 ")
