@@ -243,7 +243,7 @@ def derive(run) -> dict:
     from .macros import preferred_segments
     from .preferred import choose_preferred
     from .properties import curated_properties, element_references
-    from .refit import FIT_TOLERANCES, quality_findings, refit
+    from .refit import FIT_TOLERANCES, T_FIT_MIN_K, quality_findings, refit
 
     f = run.frames
     records, segments, tp = f["records"], f["segments"], f["table_points"]
@@ -257,7 +257,7 @@ def derive(run) -> dict:
     tab = preferred[preferred["preferred_record_id"].map(kind).eq("table").to_numpy()]
     items = tab.merge(records[["record_id", "source_id", "t_low_k", "t_high_k"]],
                       left_on="preferred_record_id", right_on="record_id")
-    items = items[items["t_high_k"].astype(float) - np.maximum(items["t_low_k"].astype(float), 200.0) >= 10.0]
+    items = items[items["t_high_k"].astype(float) - np.maximum(items["t_low_k"].astype(float), T_FIT_MIN_K) >= 10.0]
     mid = (items["t_low_k"].to_numpy(float) + items["t_high_k"].to_numpy(float)) / 2
     h_mid = funcs.evaluate(items["record_id"].to_numpy(dtype=object), mid).h if len(items) else np.empty(0)
     h_defined = dict(zip(items["record_id"], np.isfinite(h_mid)))  # absolute H known

@@ -433,7 +433,7 @@ class RecordFunctions:
             cp[is_poly], h[is_poly], s[is_poly] = p.cp, p.h, p.s
             hmh[is_poly] = p.h - h298_u[codes[is_poly]]
         is_tab = kind == "table"
-        if is_tab.any():
+        if is_tab.any() and len(self.tables.curves.record_ids):
             tb = self.tables
             rank = tb.curves.rank_of(uniq)[codes[is_tab]]
             cp[is_tab], h[is_tab], s[is_tab], hmh[is_tab] = tb.evaluate(rank, t[is_tab])

@@ -3,7 +3,11 @@
 ``preferred_segments`` holds, per species, the canonical segments (NASA/TP-2002-211556
 9-term form) of its preferred record — or, for a species whose preferred record is a
 table, the segments of its constrained NASA-9 refit (:mod:`pipeline.refit`; residuals in
-the ``fits`` table), so that every species is evaluated the same way. The scalar macros
+the ``fits`` table), so that every species is evaluated the same way. A refit covers the
+table from max(its lowest T, 200 K) up (:data:`pipeline.refit.T_FIT_MIN_K`); below that,
+as outside any range, the macros extrapolate the end segment — cryogenic values of a table
+are in ``table_points`` and ``properties``. A table spanning less than 10 K above 200 K is
+not refitted and has no macro values (NULL). The scalar macros
 
     cp(species, t_k) [J/(mol*K)], h(species, t_k) [J/mol], s(species, t_k) [J/(mol*K)],
     g(species, t_k) [J/mol]
@@ -90,7 +94,7 @@ def _sql_terms(t: str) -> dict[str, str]:
 
 
 def macro_sql() -> list[str]:
-    """CREATE MACRO statements (and their comments)."""
+    """The CREATE MACRO statements, in dependency order."""
     t = "(t_k)::DOUBLE"
     r = _d(R)
     e = _sql_terms(t)
@@ -121,9 +125,13 @@ def macro_sql() -> list[str]:
 
 
 def install(con: duckdb.DuckDBPyConnection) -> None:
-    """Create the macros in ``con`` (requires the ``preferred_segments`` table)."""
+    """Create the macros in ``con`` (requires the ``preferred_segments`` table), each with a
+    comment that ``SELECT function_name, comment FROM duckdb_functions()`` shows."""
     for stmt in macro_sql():
         con.execute(stmt)
+    for name, doc in MACRO_DOCS.items():
+        kind = "MACRO TABLE" if name == "props" else "MACRO"
+        con.execute(f"COMMENT ON {kind} {name} IS '" + doc.replace("'", "''") + "'")
 
 
 def evaluate_sql(con: duckdb.DuckDBPyConnection, species, t_k) -> pd.DataFrame:

@@ -307,6 +307,8 @@ class SetAside:
     r_before_j_mol: float
     r_after_j_mol: float = np.nan   # v − a·x̂ against the final fit without it
     z_after: float = np.nan         # that residual over √(u² + a Cov a)
+    #: data with the same |t| when it was chosen — (kind, index): the data cannot tell them apart
+    tied: list = field(default_factory=list)
 
 
 @dataclass
@@ -429,6 +431,7 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
             fit.stopped_early[int(c)] = sub.stopped_early
         for e in sub.events:
             e.index = int(rows[e.index]) if e.kind == "measurement" else int(cols[e.index])
+            e.tied = [(k, int(rows[i]) if k == "measurement" else int(cols[i])) for k, i in e.tied]
             fit.set_aside.append(e)
     return fit
 
@@ -454,8 +457,8 @@ def _worst_offender_loop(c: "_Component", z_max: float, alpha: float, max_frac: 
                                f"{crit:.4g} (dof {c.dof}) or |t| = {t_top:.2f} > {z_max:g}")
             return
         step += 1
-        for kind, idx, t, r in picks:
-            c.events.append(SetAside(kind, idx, step, t, r))
+        for kind, idx, t, r, tied in picks:
+            c.events.append(SetAside(kind, idx, step, t, r, tied=tied))
             c.remove(kind, idx)
         removed += len(picks)
 
@@ -604,18 +607,23 @@ class _Component:
             testable[cand] = ok
         if not testable.any():
             return []
-        at = np.where(testable, np.abs(t), -1.0)
+        nm = len(self.im)
+        # ties (the members of a single cycle have equal |t|): a measurement goes before a prior
+        at = np.where(testable, np.abs(t), -1.0) * np.where(np.arange(len(t)) < nm, 1.0, 1.0 - 1e-9)
         if self.dense:
             chosen = np.array([int(np.argmax(at))])
         else:
             flagged = np.flatnonzero(at > z_max)
             chosen = np.array([int(np.argmax(at))]) if len(flagged) <= 1 else self._local_maxima(flagged, at)
-        nm = len(self.im)
+
+        def who(k):
+            return ("measurement", int(self.im[k])) if k < nm else ("prior", int(self.ip[k - nm]))
+
         out = []
         for k in chosen[np.argsort(-at[chosen], kind="stable")]:
-            r = float(self.res_w[k] * self.sig[k])
-            out.append(("measurement", int(self.im[k]), float(t[k]), r) if k < nm
-                       else ("prior", int(self.ip[k - nm]), float(t[k]), r))
+            tied = np.flatnonzero(testable & (np.abs(at - at[k]) <= 1e-6 * at[k]))
+            out.append((*who(k), float(t[k]), float(self.res_w[k] * self.sig[k]),
+                        [who(j) for j in tied if j != k]))
         return out
 
     def _local_maxima(self, flagged: np.ndarray, at: np.ndarray) -> np.ndarray:

@@ -3,7 +3,8 @@
 Rule (in order): records without unwaived error findings first; then the source's
 ``priority`` (higher first); then provenance kind evaluated > measured > computed >
 estimated; then polynomial before table (a fit covers its range continuously); then the
-wider temperature range; then record id (deterministic). The reason is recorded.
+wider temperature range; then record id (deterministic). The reason names the criterion
+that separated the chosen record from the runner-up.
 """
 from __future__ import annotations
 
@@ -31,24 +32,42 @@ def choose_preferred(records: pd.DataFrame, sources: pd.DataFrame,
     if findings is not None and len(findings):
         err = findings[(findings["severity"] == "error") & ~findings["waived"].astype(bool)
                        & findings["subject_kind"].eq("species")]
-        bad = set(zip(err["subject"], err["source_id"]))
-        r["has_error"] = [(s, src) in bad for s, src in zip(r["species"], r["source_id"])]
+        bad = (err[["subject", "source_id"]].drop_duplicates()
+               .rename(columns={"subject": "species", "source_id": "_src"}).assign(_bad=True))
+        flag = r[["species", "source_id"]].merge(bad, left_on=["species", "source_id"],
+                                                 right_on=["species", "_src"], how="left")["_bad"]
+        r["has_error"] = flag.fillna(False).astype(bool).to_numpy()
     r["kind_rank"] = r["provenance"].map(KIND_ORDER).fillna(9)
     r["form_rank"] = (r["kind"] != "polynomial").astype(int)
     r["span"] = r["t_high_k"].astype(float) - r["t_low_k"].astype(float)
     r = r.sort_values(["species", "has_error", "priority", "kind_rank", "form_rank", "span", "record_id"],
                       ascending=[True, True, False, True, True, False, True], kind="stable")
     n = r.groupby("species")["record_id"].transform("size")
-    first = r.groupby("species").head(1).copy()
-    reasons = []
-    for row, count in zip(first.itertuples(index=False), n.loc[first.index]):
-        if count == 1:
-            reasons.append("only record")
-        else:
-            why = [f"priority {row.priority}", str(row.provenance)]
-            if not row.has_error:
-                why.insert(0, "no unwaived errors")
-            reasons.append(f"best of {count}: " + ", ".join(why))
+    first = r.groupby("species").head(1)
+    second = r.groupby("species").nth(1).set_index("species").reindex(first["species"])
+    count = n.loc[first.index].to_numpy()
+    f = first.set_index("species")
+    # the first criterion on which the chosen record beats the runner-up
+    decided = [
+        (f["has_error"] != second["has_error"], "the other records have unwaived error findings"),
+        (f["priority"] != second["priority"],
+         "highest source priority (" + _int_text(f["priority"]) + " over " + _int_text(second["priority"]) + ")"),
+        (f["kind_rank"] != second["kind_rank"],
+         "same priority; provenance " + f["provenance"].astype(str) + " over " + second["provenance"].astype(str)),
+        (f["form_rank"] != second["form_rank"], "same priority and provenance; a polynomial over a table"),
+        (f["span"] != second["span"], "same priority, provenance and form; the widest temperature range"),
+    ]
+    why = pd.Series("all else equal; first record id", index=f.index, dtype=object)
+    for cond, text in reversed(decided):
+        why = why.where(~cond.fillna(False).astype(bool), text)
+    tail = pd.Series(", all with unwaived errors", index=f.index).where(f["has_error"].astype(bool), "")
+    reasons = [("only record" if c == 1 else f"best of {c}: {w}{t}")
+               for c, w, t in zip(count, why.to_numpy(), tail.to_numpy())]
     return pd.DataFrame({"species": first["species"].to_numpy(),
                          "preferred_record_id": first["record_id"].to_numpy(),
                          "preferred_reason": reasons})
+
+
+def _int_text(v: pd.Series) -> pd.Series:
+    """Whole numbers as text without a decimal point (priorities are integers)."""
+    return pd.to_numeric(v, errors="coerce").round().astype("Int64").astype(str)

@@ -204,3 +204,10 @@ def test_preferred_defaults_to_polynomial_then_wider_range():
                   tables=[table_record("Kr(g)", "a", [300.0, 2000.0], cp_j_mol_k=[29.0, 29.0])])
     assert preferred_record_ids(ctx.records)["Kr(g)"] == "b/Kr(g)"
     assert isinstance(RecordFunctions(ctx.records, ctx.segments, ctx.table_points), RecordFunctions)
+
+
+def test_table_without_any_cp_is_nan_not_a_crash():
+    """A table record whose rows carry no Cp has no curve: every value is NaN."""
+    ctx = context(tables=[table_record("N2(g)", "a", [300.0, 400.0], cp_j_mol_k=[np.nan, np.nan])])
+    v = ctx.functions.evaluate("a/N2(g)", 350.0)
+    assert all(np.isnan(x) for x in (v.cp, v.h, v.s, v.g, v.h_minus_h298))

@@ -12,6 +12,7 @@ import json
 
 import numpy as np
 import pandas as pd
+import scipy.sparse as sp
 
 from .. import network as nw
 from ..constants import LN10, R, T_REF
@@ -386,8 +387,6 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
     unknown = np.array(sorted(set(long["species"][~is_ref])), dtype=object)
     col = {s: i for i, s in enumerate(unknown)}
     lu = long[~is_ref]
-    import scipy.sparse as sp
-
     A = sp.csr_matrix((lu["nu"].to_numpy(float), (lu["row"].to_numpy(), lu["species"].map(col).to_numpy())),
                       shape=(len(meas), len(unknown)))
     pref = preferred_records(ctx)
@@ -415,10 +414,20 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
             "prior_dfh_298_j_mol": np.nan, "prior_uncertainty_dfh_298_j_mol": np.nan, "determined": True,
             "chi2": np.nan, "dof": np.nan, "reduced_chi2": np.nan})], ignore_index=True)
     tbl["determined"] = tbl["determined"].astype(bool)
+    tbl["dof"] = tbl["dof"].astype("Int64")
     ctx.tables_out["reconciled"] = tbl.sort_values("species", kind="stable").reset_index(drop=True)[list(RECONCILED_COLUMNS)]
 
     parts = []
     zmax = ctx.tol(cid, "z_max")
+    rid = meas["reaction_id"].astype(str).to_numpy(object)
+
+    def tied(e) -> str:
+        if not e.tied:
+            return ""
+        names = [rid[i] if k == "measurement" else f"stated ΔfH° of {unknown[i]}" for k, i in e.tied]
+        return ("; equally suspect (they close one cycle, the data cannot tell them apart): "
+                + ", ".join(names[:8]) + (" …" if len(names) > 8 else ""))
+
     ev_m = [e for e in fit.set_aside if e.kind == "measurement"]
     if ev_m:
         k = np.array([e.index for e in ev_m])
@@ -431,7 +440,8 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
             unit="J/mol",
             message=[f"set aside (step {e.step}): standardised residual {e.t_before:+.2f} in the full fit "
                      f"(residual {e.r_before_j_mol / 1000:+.4g} kJ/mol); against the network without it the "
-                     f"residual is {e.r_after_j_mol / 1000:+.4g} kJ/mol (z = {e.z_after:+.2f})" for e in ev_m],
+                     f"residual is {e.r_after_j_mol / 1000:+.4g} kJ/mol (z = {e.z_after:+.2f}){tied(e)}"
+                     for e in ev_m],
             hint="this measurement disagrees with the rest of the network: check its value, units, "
                  "stoichiometry and the species it refers to"))
     ev_p = [e for e in fit.set_aside if e.kind == "prior"]
@@ -447,7 +457,7 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
             unit="J/mol",
             message=[f"stated ΔfH°(298.15) set aside as a prior (step {e.step}): standardised residual "
                      f"{e.t_before:+.2f}; the network without it gives a difference of "
-                     f"{e.r_after_j_mol / 1000:+.4g} kJ/mol (z = {e.z_after:+.2f})" for e in ev_p],
+                     f"{e.r_after_j_mol / 1000:+.4g} kJ/mol (z = {e.z_after:+.2f}){tied(e)}" for e in ev_p],
             hint="the species' tabulated ΔfH° disagrees with the reaction measurements"))
     unt = np.flatnonzero(fit.untestable & fit.active)
     if len(unt):
@@ -490,8 +500,13 @@ def law_series(ctx: CheckContext) -> tuple[pd.DataFrame, nw.LawResult | None]:
     first = rx.groupby("_key", sort=False).head(1)
     # a series id names one equation; a series value shared by several equations gets /first-row id
     n_eq = rx.groupby("_ser")["_key"].nunique() if ser.notna().any() else pd.Series(dtype=int)
-    sid = {k: (str(s) if n_eq.get(s, 1) == 1 else f"{s}/{r}") if isinstance(s, str) or pd.notna(s) else str(r)
-           for k, s, r in zip(first["_key"], first["_ser"], first["reaction_id"])}
+
+    def series_id(s, first_row) -> str:
+        if s is None or (isinstance(s, float) and np.isnan(s)):
+            return str(first_row)
+        return str(s) if n_eq.get(s, 1) == 1 else f"{s}/{first_row}"
+
+    sid = {k: series_id(s, r) for k, s, r in zip(first["_key"], first["_ser"], first["reaction_id"])}
     rx["_sid"] = rx["_key"].map(sid)
     pref = preferred_records(ctx)
     long = _terms(ctx, rx, pref)

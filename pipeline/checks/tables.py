@@ -37,6 +37,8 @@ def table_nodes(ctx: CheckContext) -> pd.DataFrame:
         return nodes
     spline = TableCurves.from_points(nodes, "spline")
     pchip = TableCurves.from_points(nodes, "pchip")
+    if not np.array_equal(spline.t, nodes["t_k"].to_numpy(float)):   # same sort, same rows
+        raise RuntimeError("table nodes and spline nodes are out of step (internal error)")
     nodes = nodes.assign(i_cp=spline.int_cp, i_cp_t=spline.int_cp_t, p_cp=pchip.int_cp, p_cp_t=pchip.int_cp_t)
     nodes["at_ref"] = (nodes["t_k"] - T_REF).abs() <= T_REF_MATCH_K
     return nodes.reset_index(drop=True)
@@ -146,7 +148,7 @@ def _row_frame(ctx: CheckContext) -> pd.DataFrame:
     return tp.merge(tables, on="record_id", how="left")
 
 
-def _per_row_findings(ctx, cid, rows, observed, expected, tol, unit, message, hint) -> pd.DataFrame:
+def _per_row_findings(cid, rows, observed, expected, tol, unit, message, hint) -> pd.DataFrame:
     res = np.abs(observed - expected)
     frame = rows.assign(obs=observed, exp=expected, res=res, ratio=res / tol)
     bad = frame[frame["ratio"] > 1]
@@ -185,7 +187,7 @@ def table_gibbs_identity(ctx: CheckContext) -> pd.DataFrame:
             if r.n_bad < 3 else "gef computed with another H reference (e.g. H(0)) or another S column"
 
     return _per_row_findings(
-        ctx, cid, rows, observed, expected, tol, "J/(mol*K)",
+        cid, rows, observed, expected, tol, "J/(mol*K)",
         lambda r: (f"gef = {r.obs:.4f} J/(mol·K) at {r.t_k:g} K but S − (H − H_ref)/T = {r.exp:.4f} "
                    f"({r.n_bad} rows fail)"), hint)
 
@@ -218,7 +220,7 @@ def table_logk_identity(ctx: CheckContext) -> pd.DataFrame:
         return "a transcription error in log Kf or in ΔfG"
 
     return _per_row_findings(
-        ctx, cid, rows, observed, expected, tol, "1",
+        cid, rows, observed, expected, tol, "1",
         lambda r: f"log Kf = {r.obs:.4f} at {r.t_k:g} K but −ΔfG/(RT ln 10) = {r.exp:.4f} ({r.n_bad} rows fail)",
         hint)
 

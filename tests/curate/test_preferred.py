@@ -27,11 +27,16 @@ def test_priority_then_kind():
     p = choose_preferred(_records(), SOURCES).set_index("species")
     assert p.loc["X(g)", "preferred_record_id"] == "c/X"     # priority 10, measured beats estimated
     assert p.loc["Y(g)", "preferred_record_id"] == "e/Y"     # same priority: evaluated beats computed
-    assert "priority 10" in p.loc["X(g)", "preferred_reason"]
+    assert p.loc["X(g)", "preferred_reason"] == "best of 3: same priority; provenance measured over estimated"
+    assert p.loc["Y(g)", "preferred_reason"] == "best of 2: same priority; provenance evaluated over computed"
 
 
 def test_unwaived_error_demotes_and_waived_does_not():
     p = choose_preferred(_records(), SOURCES, _errors("X(g)", "c")).set_index("species")
     assert p.loc["X(g)", "preferred_record_id"] == "b/X"
+    assert p.loc["X(g)", "preferred_reason"] == "best of 3: highest source priority (10 over 5)"
+    p = choose_preferred(_records(), SOURCES, pd.concat([_errors("X(g)", "c"), _errors("X(g)", "b")]))
+    assert p.set_index("species").loc["X(g)", "preferred_reason"] == \
+        "best of 3: the other records have unwaived error findings"
     p = choose_preferred(_records(), SOURCES, _errors("X(g)", "c", waived=True)).set_index("species")
     assert p.loc["X(g)", "preferred_record_id"] == "c/X"

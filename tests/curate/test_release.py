@@ -62,7 +62,7 @@ def test_preferred_record_follows_priority_and_is_recorded(release):
     with _con(out) as con:
         sp = con.execute("SELECT species, preferred_record_id, preferred_reason FROM species").df().set_index("species")
     assert sp.loc["H2O(g)", "preferred_record_id"] == "main/H2O"      # priority 10 beats 5
-    assert "priority 10" in sp.loc["H2O(g)", "preferred_reason"]
+    assert sp.loc["H2O(g)", "preferred_reason"] == "best of 2: highest source priority (10 over 5)"
     assert sp.loc["N2(g)", "preferred_record_id"] == "tables/N2(g)"
     assert sp.loc["N2(g)", "preferred_reason"] == "only record"
 
@@ -194,3 +194,12 @@ def test_a_table_no_fit_holds_is_reported_not_silently_fitted(tmp_path):
         h = con.execute("SELECT h('Ar(g)', 1000), s('Ar(g)', 1000) FROM species").fetchall()[0]
     assert fit[0][0] == "unknown (set to 0)" and fit[0][1] > 4 * 0.005
     assert h[0] is None and h[1] is not None           # no ΔfH in the table: H and G unknown
+
+
+def test_macros_are_documented_in_the_file(release):
+    _, out = release
+    with _con(out) as con:
+        docs = dict(con.execute("SELECT function_name, comment FROM duckdb_functions() WHERE function_name IN "
+                                "('cp', 'h', 's', 'g', 'props', 'h_minus_h298') AND database_name = 'thermo'").fetchall())
+    assert set(docs) == {"cp", "h", "s", "g", "props", "h_minus_h298"}
+    assert all(docs.values()) and "J/(mol*K)" in docs["cp"]

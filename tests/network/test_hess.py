@@ -110,3 +110,20 @@ def test_measurement_outside_a_record_range_is_not_extrapolated():
     ctx = network_context(poly=_species(), rx=rx)   # records end at 3000 K
     f = reaction_residual(ctx)
     assert list(f["severity"]) == ["info"] and "outside its range" in f["message"].iloc[0]
+
+
+def test_computed_values_come_from_the_preferred_source():
+    """Two sources for CO2: the manifest priority decides which one computes the reaction."""
+    import pandas as pd
+
+    rx = reactions([("r", COMB_CO, "drh", T_REF, -283.0e3, 0.5e3)])
+    poly = _species() + [const_cp("CO2(g)", -390.0e3, 213.74, 37.11, source="other")]
+    ctx = network_context(poly=poly, rx=rx)
+    ctx.sources = pd.DataFrame({"source_id": ["poly", "other"], "priority": [10, 0],
+                                "kind": ["evaluated", "evaluated"]})
+    reaction_residual(ctx)
+    assert ctx.tables_out["reaction_results"]["computed_value"].iloc[0] == pytest.approx(-282.98e3, abs=1.0)
+    ctx.sources = pd.DataFrame({"source_id": ["poly", "other"], "priority": [0, 10],
+                                "kind": ["evaluated", "evaluated"]})
+    reaction_residual(ctx)
+    assert ctx.tables_out["reaction_results"]["computed_value"].iloc[0] == pytest.approx(-279.47e3, abs=1.0)

@@ -95,3 +95,18 @@ def test_iterative_path_names_the_same_measurement():
         assert [(e.kind, rows[e.index][0]) for e in fit.set_aside] == [("measurement", "g2")]
         e = fit.set_aside[0]
         assert abs(e.t_before) > 3 and abs(e.z_after) > 10
+
+
+def test_single_cycle_names_the_members_it_cannot_separate():
+    """Three measurements closing one cycle have equal standardised residuals: the one set
+    aside says which others are equally suspect."""
+    rows = [("a", {C: -1, O2: -1, CO2: 1}, "drh", T_REF, -393.51e3, 0.13e3),
+            ("b", {"CO(g)": -1, O2: -0.5, CO2: 1}, "drh", T_REF, -283.0e3, 0.2e3),
+            ("c", {C: -1, O2: -0.5, "CO(g)": 1}, "drh", T_REF, -100.0e3, 0.2e3)]   # 10.5 kJ/mol off
+    ctx = network_context(rx=reactions(rows))
+    f = network_worst_offender(ctx)
+    warn = f[f["severity"] == "warning"]
+    assert len(warn) == 1
+    others = {"a", "b", "c"} - {warn["subject"].iloc[0]}
+    assert "equally suspect" in warn["message"].iloc[0]
+    assert all(o in warn["message"].iloc[0].split("apart): ")[1] for o in others)
