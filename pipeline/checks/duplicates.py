@@ -186,10 +186,15 @@ def _compare(ctx: CheckContext, pairs: pd.DataFrame, tol: dict) -> pd.DataFrame:
     gas = pairs.set_index("pair")["state"].eq("g")
     atm = gas & cp_equal & ds["constant"].fillna(False).astype(bool) \
         & ((ds["mean"].abs() - R_LN_ATM).abs() <= tol["atm_s_j_mol_k"])
-    flag(atm, 2, lambda i: (f"S of {pairs.at[i, 'src_b'] if ds.at[i, 'mean'] > 0 else pairs.at[i, 'src_a']} "
-                            f"is lower by {abs(ds.at[i, 'mean']):.4f} J/(mol·K) = R ln 1.01325 at every point "
-                            "with equal Cp: it is on the 1 atm standard state, not 1 bar — declare "
-                            "reference_pressure_bar = 1.01325 for that source"),
+    def _atm_hint(i):
+        low, high = ((pairs.at[i, "src_b"], pairs.at[i, "src_a"]) if ds.at[i, "mean"] > 0
+                     else (pairs.at[i, "src_a"], pairs.at[i, "src_b"]))
+        return (f"S of {low} is lower than {high}'s by {abs(ds.at[i, 'mean']):.4f} J/(mol·K) = R ln 1.01325 "
+                f"at every point with equal Cp: a 1 atm / 1 bar slip — either {low} holds 1 atm values but "
+                f"is declared at 1 bar, or {high} holds 1 bar values but is declared at 1 atm; check "
+                "reference_pressure_bar of both sources in sources.toml")
+
+    flag(atm, 2, _atm_hint,
          obs=lambda i: (abs(ds.at[i, "mean"]), R_LN_ATM, tol["atm_s_j_mol_k"], "J/(mol*K)"))
     s_off = cp_equal & ds["constant"].fillna(False).astype(bool) \
         & (ds["mean"].abs() >= tol["offset_s_j_mol_k"]) & ~atm

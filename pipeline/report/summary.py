@@ -33,6 +33,8 @@ def summary_text(run, max_rows: int = 40) -> str:
         for r in shown.head(max_rows).itertuples(index=False):
             src = f" [{r.source_id}]" if isinstance(r.source_id, str) else ""
             lines.append(f"    {r.severity:7s} {r.check_id:30s} {r.subject}{src}: {r.message}")
+            if isinstance(r.hint, str) and r.hint and r.check_id != "schema.rejected":
+                lines.append(f"    {'':7s} {'':30s} hint: {r.hint}")
         if len(shown) > max_rows:
             lines.append(f"    … {len(shown) - max_rows} more in curated/report/ and the findings table")
     lines.append("")
