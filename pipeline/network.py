@@ -564,7 +564,7 @@ class _Component:
 
     def _probe(self):
         G = self.rng.standard_normal((self.J.shape[0], self.n_probes))
-        Y = block_pcg(self.M, self.J.T @ G, self.dinv, rtol=1e-7)
+        Y = block_pcg(self.M, self.J.T @ G, self.dinv, rtol=1e-5)
         var = (Y ** 2).mean(axis=1)
         one_minus_h = ((G - self.J @ Y) ** 2).mean(axis=1)
         return var, _RowMap(self.m, self.n, self.im, self.ip, one_minus_h), Y

@@ -26,6 +26,7 @@ import numpy as np
 import pandas as pd
 
 from ..equation import EquationError, parse_equation
+from ..formula import ELECTRON, FormulaError, parse_formula, parse_key
 from ..errors import InputError, UnitError
 from ..manifest import Source
 from ..units import column_factor, energy_unit_for, factor_to_si, is_dimensionless
@@ -50,6 +51,112 @@ def _parse(equation: str) -> tuple[str | None, str | None]:
     except EquationError as exc:
         return None, f"equation {equation!r}: {exc}"
     return json.dumps(r.stoich, sort_keys=True), None
+
+
+#: A term of the fast path: an optional integer or decimal coefficient, one space, a key
+#: without spaces or '+' that does not start like a number.
+_FAST_TERM = r"^(?:(?P<c>\d+(?:\.\d+)?) )?(?P<k>[^\s+\d.][^\s+]*)$"
+_BALANCE_TOL = 1e-9     # the tolerance of pipeline.equation.parse_equation
+
+
+def _species(text: str, cache: dict):
+    """(key, {element: count}, charge) of a species key as written; None if it does not parse."""
+    got = cache.get(text)
+    if got is None:
+        try:
+            sk = parse_key(text)
+            f = parse_formula(sk.formula)
+            got = (sk.key, {el: n for el, n in f.elements.items() if el != ELECTRON}, f.charge)
+        except FormulaError:
+            got = False
+        cache[text] = got
+    return got or None
+
+
+def parse_equations(equations) -> list[tuple[str | None, str | None]]:
+    """(stoich_json, None) or (None, reason) for every equation, vectorised.
+
+    Plainly written equations — terms ``[n ]KEY`` joined by " + ", integer or decimal
+    coefficients, keys without spaces or '+', no species twice, balanced with a margin of
+    half the tolerance of :func:`pipeline.equation.parse_equation` — are parsed all at once
+    (Arrow string kernels, one pass over the distinct species keys, element sums with
+    numpy). Their stoichiometry is exactly what ``parse_equation`` gives (ν = ±float(coefficient
+    text), keys normalised by ``parse_key``, the same JSON). Every other equation
+    (fractions, ions, a repeated species, an imbalance or anything near the tolerance, a
+    syntax error) goes through ``parse_equation`` itself, which gives the exact reason.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    eqs = list(equations)
+    n = len(eqs)
+    result: list = [None] * n
+    fast = np.zeros(n, bool)
+    text = pa.array([e if isinstance(e, str) else None for e in eqs], pa.string())
+    one_eq = pc.equal(pc.count_substring(text, "="), 1).to_numpy(zero_copy_only=False)
+    cand = np.flatnonzero(np.nan_to_num(one_eq.astype(float)) > 0) if n else np.empty(0, int)
+    if len(cand):
+        sides = pc.split_pattern(text.take(pa.array(cand)), "=")
+        eq_parts, side_parts, term_parts = [], [], []
+        for k in (0, 1):
+            lst = pc.split_pattern(pc.list_element(sides, k), " + ")
+            eq_parts.append(cand[pc.list_parent_indices(lst).to_numpy()])
+            side_parts.append(np.full(len(eq_parts[-1]), k))
+            term_parts.append(pc.utf8_trim_whitespace(pc.list_flatten(lst)))
+        eq_of = np.concatenate(eq_parts)
+        side = np.concatenate(side_parts)
+        terms = pa.concat_arrays(term_parts)
+        ext = pc.extract_regex(terms, _FAST_TERM)
+        ok_term = pc.is_valid(ext).to_numpy(zero_copy_only=False)
+        c_txt = pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "c"), "")
+        c_txt = pc.if_else(pc.equal(c_txt, ""), "1", c_txt)
+        coef = pc.cast(c_txt, pa.float64()).to_numpy(zero_copy_only=False)
+        keys = pc.dictionary_encode(pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "k"), ""))
+        code = keys.indices.to_numpy(zero_copy_only=False)
+        uniq = keys.dictionary.to_pylist()
+        cache: dict = {}
+        info = [_species(k, cache) if k else None for k in uniq]
+        parsed = np.array([i is not None for i in info], bool)
+        norm = np.array([i[0] if i else "" for i in info], dtype=object)
+        # a normalised key twice in one equation (also via two spellings) → general path
+        norm_code = pd.factorize(norm)[0]
+        elements = sorted({el for i in info if i for el in i[1]})
+        col = {el: j for j, el in enumerate(elements)}
+        comp = np.zeros((len(uniq), len(elements) + 1))       # element counts, then the charge
+        for r, i in enumerate(info):
+            if i:
+                for el, v in i[1].items():
+                    comp[r, col[el]] = v
+                comp[r, -1] = i[2]
+        bad_row = ~ok_term | ~(coef > 0) | ~parsed[code]
+        pair = pd.DataFrame({"e": eq_of, "k": norm_code[code]})
+        bad_row |= pair.duplicated().to_numpy()
+        bad = np.zeros(n, bool)
+        bad[eq_of[bad_row]] = True
+        # element and charge totals per equation and side (the quantities parse_equation sums)
+        tot = np.zeros((2, n, comp.shape[1]))
+        np.add.at(tot, (side, eq_of), coef[:, None] * comp[code])
+        a, b = tot[0], tot[1]
+        scale = np.maximum(1.0, np.maximum(np.abs(a), np.abs(b)))
+        scale[:, -1] = np.maximum(1.0, np.abs(a[:, -1]))
+        bad |= (np.abs(a - b) > 0.5 * _BALANCE_TOL * scale).any(axis=1)
+        good = ~bad[eq_of]
+        if good.any():
+            g_eq, g_norm = eq_of[good], norm[code[good]]
+            nu = np.where(side[good] == 1, coef[good], -coef[good])
+            jkey = {k: json.dumps(k) for k in pd.unique(g_norm)}
+            jval = {v: json.dumps(v) for v in np.unique(nu).tolist()}
+            order = np.lexsort((g_norm.astype(str), g_eq))
+            items = [jkey[k] + ": " + jval[v] for k, v in zip(g_norm[order].tolist(), nu[order].tolist())]
+            eq_sorted = g_eq[order]
+            starts = np.flatnonzero(np.r_[True, eq_sorted[1:] != eq_sorted[:-1]])
+            stops = np.r_[starts[1:], len(items)]
+            for e, a0, a1 in zip(eq_sorted[starts].tolist(), starts.tolist(), stops.tolist()):
+                result[e] = ("{" + ", ".join(items[a0:a1]) + "}", None)
+                fast[e] = True
+    for i in np.flatnonzero(~fast):
+        result[i] = _parse(eqs[i])
+    return result
 
 
 def read(path: Path, source: Source, rel: str) -> ReadResult:
@@ -92,7 +199,7 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
     cf.reject(badq.to_numpy(), "column 'quantity' = " + cf.text("quantity").map(repr)
               + ": expected drh, drg or log_k — fix: correct the quantity")
     # equation
-    parsed = [_parse(e) for e in cf.text("equation")]
+    parsed = parse_equations(cf.text("equation"))
     stoich = pd.Series([p[0] for p in parsed], index=cells.index, dtype=object)
     eq_err = pd.Series([p[1] or "" for p in parsed], index=cells.index)
     cf.reject((eq_err != "").to_numpy(), eq_err)

@@ -74,3 +74,22 @@ def test_closure_statistic():
     assert s[0] == pytest.approx(2.0)
     assert us[0] == pytest.approx(5.0)
     assert z[0] == pytest.approx(0.4)
+
+
+def test_log_k_and_gibbs_energy_at_one_temperature_close_a_cycle():
+    """log K and ΔrG of one reaction at one T are the same quantity: ΔrG = −RT ln 10 log K."""
+    from pipeline.checks.reactions import cycle_closure
+    from pipeline.constants import LN10, R
+    from tests.network.helpers import network_context, reactions
+
+    st = {"N2O4(g)": -1, "NO2(g)": 2}
+    t = 400.0
+    dg = -10.0e3
+    lk = -dg / (R * t * LN10)
+    ok = reactions([("a", st, "drg", t, dg, 0.2e3), ("b", st, "log_k", t + 0.3, lk, 0.01)])
+    assert cycle_closure(network_context(rx=ok)).empty
+    bad = reactions([("a", st, "drg", t, dg, 0.2e3), ("b", st, "log_k", t + 0.3, lk + 0.5, 0.01)])
+    f = cycle_closure(network_context(rx=bad))
+    assert list(f["subject"]) == ["cycle:a+b"]
+    # a − b = ΔrG(a) + RT' ln 10 (log K + 0.5); the 0.3 K apart adds 0.2 % (within same_t_k)
+    assert f["observed"].iloc[0] == pytest.approx(0.5 * R * (t + 0.3) * LN10, rel=3e-3)
