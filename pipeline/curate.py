@@ -84,7 +84,8 @@ DOCS: dict[str, tuple[str, dict[str, str]]] = {
         "value": "measured value [J/mol; 1 for log_k]", "uncertainty": "standard uncertainty, k = 1 [unit of value]",
         "unit": "unit as written in the source", "series": "series id (log K at several T)",
         "method": "experimental method", "computed": "value computed from the curated species [unit of value]",
-        "residual": "measured − computed [unit of value]", "z": "residual / combined standard uncertainty [1]"}),
+        "residual": "measured − computed [unit of value]", "z": "residual / combined standard uncertainty [1]",
+        "u_combined": "combined standard uncertainty of the residual [unit of value]"}),
     "reconciled": ("Network least-squares ΔfH°(298.15) per species with its standard uncertainty and the fit's χ².", {}),
     "properties": ("Curated properties of each species' preferred record on the standard grid: 298.15 K, then "
                    "every 100 K from max(100 K, lower bound rounded up) to the upper bound. Formation values "
@@ -383,7 +384,7 @@ def curated_tables(run, prev: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame
         "records": _sorted(f["records"], ["record_id"]),
         "segments": _sorted(f["segments"], ["record_id", "segment"]),
         "table_points": _sorted(f["table_points"], ["record_id", "t_k"]),
-        "reactions": _sorted(f["reactions"], ["reaction_id"]),
+        "reactions": _sorted(_with_results(f["reactions"], run), ["reaction_id"]),
         "findings": findings,
         "rejected": _sorted(f["rejected"], ["source_id", "file", "line"]),
         "runs": runs,
@@ -394,8 +395,19 @@ def curated_tables(run, prev: dict[str, pd.DataFrame]) -> dict[str, pd.DataFrame
             tables[name] = _sorted(d[name], keys)
     tables["macros"] = pd.DataFrame(sorted(MACRO_DOCS.items()), columns=["name", "description"])
     for name, df in (run.extra.get("extra_tables") or {}).items():
-        tables[name] = _sorted(df)
+        if name != "reaction_results":  # merged into `reactions` (outputs.md)
+            tables[name] = _sorted(df)
     return {k: v.reset_index(drop=True) for k, v in tables.items()}
+
+
+def _with_results(reactions: pd.DataFrame, run) -> pd.DataFrame:
+    """Reactions with the network stage's computed value, residual, z and combined u."""
+    res = (run.extra.get("extra_tables") or {}).get("reaction_results")
+    cols = {"computed_value": "computed", "residual": "residual", "z": "z", "u_combined": "u_combined"}
+    if res is None or not len(res):
+        return reactions.assign(**{c: np.nan for c in cols.values()})
+    res = res.rename(columns=cols)[["reaction_id", *cols.values()]]
+    return reactions.drop(columns=[c for c in cols.values() if c in reactions]).merge(res, on="reaction_id", how="left")
 
 
 def _counts(run) -> dict:
