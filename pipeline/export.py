@@ -109,17 +109,26 @@ def _d16(x: float) -> str:
 
 
 def nasa7_text(name: str, date: str, elements: list[tuple[str, float]], phase: str,
-               t_low: float, t_mid: float, t_high: float, lower: np.ndarray, upper: np.ndarray) -> str:
+               t_low: float, t_mid: float, t_high: float, lower: np.ndarray, upper: np.ndarray,
+               *, t_common_width: int = 8, pad_unused: bool = False) -> str:
     """Four 80-column lines (classic layout; inputs.md "nasa7"). ``lower``/``upper`` are
-    NASA-7 coefficient vectors (7,)."""
+    NASA-7 coefficient vectors (7,).
+
+    ``t_common_width`` 8 writes T_common as F8.3 in columns 66–73 (room for a fifth element
+    in 74–78); 10 writes it as F10.3 over 66–75, as many real files do (four elements at
+    most). ``pad_unused`` writes unused element pairs as a blank symbol and a zero count.
+    """
     if len(name) > 18 or " " in name:
         raise ValueError(f"name {name!r} does not fit columns 1-18")
-    if len(elements) > 5:
-        raise ValueError(f"{name}: {len(elements)} elements; the layout holds 5")
+    if len(elements) > (5 if t_common_width == 8 else 4):
+        raise ValueError(f"{name}: {len(elements)} elements; the layout holds "
+                         f"{5 if t_common_width == 8 else 4}")
     pairs = "".join(f"{el.upper():<2}{_num(n):>3}" for el, n in elements[:4])
+    if pad_unused:
+        pairs += "    0" * (4 - min(len(elements), 4))
     fifth = "".join(f"{el.upper():<2}{_num(n):>3}" for el, n in elements[4:5])
-    line1 = (f"{name:<18}{date[:6]:<6}{pairs:<20}{phase:1}{t_low:10.3f}{t_high:10.3f}{t_mid:8.3f}"
-             f"{fifth:<5} 1")
+    line1 = (f"{name:<18}{date[:6]:<6}{pairs:<20}{phase:1}{t_low:10.3f}{t_high:10.3f}"
+             + (f"{t_mid:8.3f}{fifth:<5}" if t_common_width == 8 else f"{t_mid:10.3f}")).ljust(79) + "1"
     c = list(upper) + list(lower)
     line2 = "".join(_e15(x) for x in c[0:5]) + "    2"
     line3 = "".join(_e15(x) for x in c[5:10]) + "    3"
@@ -131,21 +140,26 @@ def nasa7_text(name: str, date: str, elements: list[tuple[str, float]], phase: s
 
 
 def nasa9_text(name: str, comment: str, ref: str, elements: list[tuple[str, float]], phase: int,
-               molar_mass: float, dfh: float, segs: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray) -> str:
+               molar_mass: float, dfh: float, segs: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray,
+               *, h298_minus_h0: float | None = None, pad_unused: bool = False,
+               exponents=NASA9_EXPONENTS) -> str:
     """A NASA-9 record (inputs.md "nasa9"); ``segs`` (k, 9) canonical coefficients.
-    ΔfH°(298.15) is left blank when unknown; H(298.15) − H(0) is not known to a release
-    and is left blank."""
+    ΔfH°(298.15) is left blank when unknown; H(298.15) − H(0) [J/mol] is written only when
+    given (a release does not know it). ``exponents`` are written as given (the standard
+    set unless a reader test needs another)."""
     if len(name) > 18 or " " in name:
         raise ValueError(f"name {name!r} does not fit columns 1-18")
     if len(elements) > 5:
         raise ValueError(f"{name}: {len(elements)} elements; the layout holds 5")
-    pairs = "".join(f"{el.upper():<2}{n:6.2f}" for el, n in elements).ljust(40)
+    pairs = "".join(f"{el.upper():<2}{n:6.2f}" for el, n in elements)
+    pairs = (pairs + "    0.00" * (5 - len(elements))) if pad_unused else pairs.ljust(40)
     dfh_txt = f"{dfh:15.3f}" if np.isfinite(dfh) else " " * 15
     out = [f"{name:<18}{comment}"[:80],
            f"{len(segs):2d} {ref[:6]:<6} {pairs}{phase:2d}{molar_mass:13.7f}{dfh_txt}"]
-    exps = "".join(f"{e:5.1f}" for e in NASA9_EXPONENTS)
+    exps = "".join(f"{e:5.1f}" for e in exponents)
+    h0 = f"  {h298_minus_h0:15.3f}" if h298_minus_h0 is not None else ""
     for c, lo, hi in zip(segs, t_lo, t_hi):
-        out.append(f"{lo:11.3f}{hi:11.3f}7{exps}")
+        out.append(f"{lo:11.3f}{hi:11.3f}7{exps}{h0}")
         out.append("".join(_d16(x) for x in c[0:5]))
         out.append(_d16(c[5]) + _d16(c[6]) + " " * 16 + _d16(c[7]) + _d16(c[8]))
     return "\n".join(out)

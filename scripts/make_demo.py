@@ -47,6 +47,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
+import periodictable
 from scipy.interpolate import CubicSpline
 from scipy.linalg import null_space
 
@@ -54,16 +55,16 @@ sys.path.insert(0, str(Path(__file__).resolve().parent))
 from demo_physics import (ATM_BAR, P_STD_BAR, R, T_REF, Crystal, Gas, Liquid,  # noqa: E402
                           crystal_dfh_for_liquid)
 
+from pipeline.export import nasa7_text, nasa9_text  # noqa: E402  (the project's own writers)
+from pipeline.thermo import to_nasa7  # noqa: E402
+
 SEED = 20240611
 LAB = "Tollbridge Combustion Laboratory"
 
-# -------------------------------------------------------------------------------------
-# Atomic weights [g/mol]: IUPAC conventional / abridged standard atomic weights (CIAAW,
-# "Standard atomic weights of the elements 2021", Pure Appl. Chem. 94 (2022) 573),
-# the values thermochemical tables use.
-# -------------------------------------------------------------------------------------
-ATOMIC_WEIGHT = {"H": 1.008, "C": 12.011, "N": 14.007, "O": 15.999, "Mg": 24.305,
-                 "Ar": 39.948, "Ne": 20.180}
+def atomic_weight(symbol: str) -> float:
+    """IUPAC abridged standard atomic weight [g/mol] from periodictable (the values
+    thermochemical tables use), the same source the pipeline checks molar masses against."""
+    return float(periodictable.elements.symbol(symbol).mass)
 
 
 def elements_of(formula: str) -> dict[str, int]:
@@ -75,7 +76,7 @@ def elements_of(formula: str) -> dict[str, int]:
 
 
 def molar_mass(formula: str) -> float:
-    return sum(ATOMIC_WEIGHT[s] * n for s, n in elements_of(formula).items())
+    return sum(atomic_weight(s) * n for s, n in elements_of(formula).items())
 
 
 def formula_of(key: str) -> str:
@@ -277,61 +278,28 @@ def fit_report(fit: Fit, model) -> dict:
 # Writers
 # -------------------------------------------------------------------------------------
 
-def _e15(x: float) -> str:
-    s = f"{x:15.8E}"
-    assert len(s) == 15, s
-    return s
-
-
-def _d16(x: float) -> str:
-    s = f"{x:16.9E}".replace("E", "D")
-    assert len(s) == 16, s
-    return s
-
-
 def nasa7_lines(name: str, fit: Fit, formula: dict, phase: str, date_code: str) -> list[str]:
-    """Four 80-column lines (classic layout, NASA TM-4513 column map)."""
+    """Four 80-column lines (classic layout, NASA TM-4513 column map), through the
+    project's own writer; T_common as F10.3 over columns 66-75 and unused element pairs
+    written as zero counts, as many real files do (inputs.md)."""
     assert len(fit.coef) == 2
-    lo = list(fit.coef[0, 2:7]) + list(fit.coef[0, 7:9])
-    up = list(fit.coef[1, 2:7]) + list(fit.coef[1, 7:9])
-    pairs = "".join(f"{s.upper():<2}{n:>3d}" for s, n in formula.items())
-    pairs = pairs + "    0" * (4 - len(formula))          # unused pairs as real files write them
-    assert len(pairs) == 20
-    # T_common as F10.3 over columns 66-75, as many real files write it (inputs.md)
-    l1 = (f"{name:<18}{date_code:<6}{pairs}{phase}"
-          f"{fit.bounds[0]:10.3f}{fit.bounds[2]:10.3f}{fit.bounds[1]:10.3f}").ljust(79) + "1"
-    l2 = "".join(_e15(v) for v in up[0:5]).ljust(79) + "2"
-    l3 = "".join(_e15(v) for v in up[5:7] + lo[0:3]).ljust(79) + "3"
-    l4 = "".join(_e15(v) for v in lo[3:7]).ljust(79) + "4"
-    for line in (l1, l2, l3, l4):
-        assert len(line) == 80, (name, line)
-    return [l1, l2, l3, l4]
+    lo, up = (to_nasa7(c) for c in fit.coef)
+    return nasa7_text(name, date_code, list(formula.items()), phase, fit.bounds[0], fit.bounds[1],
+                      fit.bounds[2], lo, up, t_common_width=10, pad_unused=True).split("\n")
 
 
 def nasa9_lines(name: str, comment: str, fit: Fit, formula: dict, phase_flag: int,
                 ref_code: str, dfh: float, h298_minus_h0: float) -> list[str]:
-    """One NASA-9 record (NASA/TP-2002-211556, Appendix A column map)."""
-    head = f"{name:<18}{comment}"
-    pairs = "".join(f"{s.upper():<2}{n:6.2f}" for s, n in formula.items())
-    pairs = pairs + "    0.00" * (5 - len(formula))
-    assert len(pairs) == 40
-    l2 = (f"{len(fit.coef):2d} {ref_code:<6} {pairs}{phase_flag:2d}"
-          f"{molar_mass_of_formula(formula):13.7f}{dfh:15.3f}")
-    assert len(l2) == 80, l2
-    out = [head, l2]
-    exps = "".join(f"{e:5.1f}" for e in (-2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0, 0.0))
-    for j, c in enumerate(fit.coef):
-        tl = f"{fit.bounds[j]:11.3f}{fit.bounds[j + 1]:11.3f}7{exps}  {h298_minus_h0:15.3f}"
-        assert len(tl) == 80, tl
-        c1 = "".join(_d16(v) for v in c[0:5])
-        c2 = _d16(c[5]) + _d16(c[6]) + " " * 16 + _d16(c[7]) + _d16(c[8])
-        assert len(c1) == 80 and len(c2) == 80
-        out += [tl, c1, c2]
-    return out
+    """One NASA-9 record (NASA/TP-2002-211556, Appendix A column map), through the
+    project's own writer."""
+    return nasa9_text(name, comment, ref_code, list(formula.items()), phase_flag,
+                      molar_mass_of_formula(formula), dfh, np.asarray(fit.coef),
+                      fit.bounds[:-1], fit.bounds[1:], h298_minus_h0=h298_minus_h0,
+                      pad_unused=True).split("\n")
 
 
 def molar_mass_of_formula(formula: dict) -> float:
-    return sum(ATOMIC_WEIGHT[s] * n for s, n in formula.items())
+    return sum(atomic_weight(s) * n for s, n in formula.items())
 
 
 def shomate_rows(key: str, fit: Fit, dfh: float) -> list[str]:

@@ -293,6 +293,10 @@ def render_html(run, findings: pd.DataFrame) -> str:
     counts = (f"{len(m.sources) if m else 0} sources · {len(frames.get('species', []))} species · "
               f"{len(frames.get('records', []))} records · {len(frames.get('reactions', []))} reactions · "
               f"{len(frames.get('rejected', []))} rejected input records")
+    reuse = run.extra.get("reuse") or {}
+    if reuse.get("sources_reused"):
+        counts += (f" · parsed frames of {len(reuse['sources_reused'])} unchanged source(s) reused from the "
+                   f"cache, {len(reuse.get('sources_read', []))} source(s) read")
 
     out = ['<!DOCTYPE html><html lang="en"><head><meta charset="utf-8">',
            '<meta name="viewport" content="width=device-width, initial-scale=1">',

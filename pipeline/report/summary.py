@@ -7,11 +7,22 @@ import pandas as pd
 def summary_text(run, max_rows: int = 40) -> str:
     f = run.findings if run.findings is not None else pd.DataFrame(columns=["severity"])
     m = run.manifest
+    def n(name: str) -> int:   # a reused release knows its counts without loading the tables
+        return int(run.counts[name]) if name in run.counts else len(run.frames.get(name, ()))
+
     lines = [f"thermoledger run {run.run_id} — {m.database.name}",
-             f"  sources: {len(m.sources)}   species: {len(run.frames['species'])}   "
-             f"records: {len(run.frames['records'])}   segments: {len(run.frames['segments'])}   "
-             f"table rows: {len(run.frames['table_points'])}   reactions: {len(run.frames['reactions'])}   "
-             f"rejected: {len(run.frames['rejected'])}"]
+             f"  sources: {len(m.sources)}   species: {n('species')}   "
+             f"records: {n('records')}   segments: {n('segments')}   "
+             f"table rows: {n('table_points')}   reactions: {n('reactions')}   "
+             f"rejected: {n('rejected')}"]
+    reuse = run.extra.get("reuse") or {}
+    if "release" in reuse:
+        lines.append(f"  reused: every table, finding and report of run {reuse['release']} (inputs, "
+                     "configuration, waivers and tool unchanged)")
+    elif reuse.get("sources_reused"):
+        lines.append(f"  reused: parsed frames of {len(reuse['sources_reused'])} unchanged source(s); "
+                     f"read {len(reuse.get('sources_read', []))}: " + (", ".join(reuse.get("sources_read", []))
+                                                                        or "none"))
     live = f[~f["waived"].astype(bool)] if len(f) else f
     counts = live["severity"].value_counts() if len(live) else pd.Series(dtype=int)
     lines.append(f"  findings: {int(counts.get('error', 0))} error, {int(counts.get('warning', 0))} warning, "
