@@ -78,6 +78,11 @@ class SpeciesKey:
         return f"{self.formula}({inner})"
 
 
+#: Distinct formulas and keys remembered (a database of 10⁵ species parses each key once).
+CACHE_SIZE = 1 << 18
+
+
+@lru_cache(maxsize=CACHE_SIZE)
 def parse_key(text: str) -> SpeciesKey:
     """Split a species key. Raises FormulaError for a missing or unknown state."""
     m = _KEY.match(text or "")
@@ -92,6 +97,16 @@ def parse_key(text: str) -> SpeciesKey:
     return SpeciesKey(m.group("formula").strip(), state, label)
 
 
+@lru_cache(maxsize=512)
+def _is_element(sym: str) -> bool:
+    """True when ``sym`` passes :func:`_check_symbol` (a symbol of a real element)."""
+    try:
+        _check_symbol(sym, sym)
+    except FormulaError:
+        return False
+    return True
+
+
 def _check_symbol(sym: str, text: str) -> None:
     try:
         el = periodictable.elements.symbol(sym)
@@ -102,7 +117,7 @@ def _check_symbol(sym: str, text: str) -> None:
         raise FormulaError(text, f"unknown element symbol {sym!r}", "use a real element")
 
 
-@lru_cache(maxsize=65536)
+@lru_cache(maxsize=CACHE_SIZE)
 def _parse_formula_cached(text: str) -> tuple[tuple[tuple[str, float], ...], int]:
     body = text.strip()
     charge = 0
@@ -226,19 +241,24 @@ def recase_name(name: str, elements: dict, charge: int = 0) -> str | None:
     if m and m.start() > 0:
         suffix, core = name[m.start():], name[: m.start()]
 
-    def candidates(s: str) -> list[str]:
+    def candidates(s: str):
+        """Casings in depth-first order (one-letter symbol before two-letter), lazily; a
+        prefix whose symbol is no element cannot parse and is not extended."""
         if not s:
-            return [""]
-        out = []
+            yield ""
+            return
         ch = s[0]
         if ch.isalpha():
             for width in (1, 2):
                 if len(s) >= width and s[:width].isalpha():
                     sym = s[0].upper() + s[1:width].lower()
-                    out += [sym + rest for rest in candidates(s[width:])]
+                    if not _is_element(sym):
+                        continue
+                    for rest in candidates(s[width:]):
+                        yield sym + rest
         else:
-            out += [ch + rest for rest in candidates(s[1:])]
-        return out
+            for rest in candidates(s[1:]):
+                yield ch + rest
 
     if len(core) > 24:
         return None

@@ -2,7 +2,7 @@
 
 A table states Cp, S, H − H(T_ref), gef, ΔfH, ΔfG and log Kf side by side; thermodynamics
 ties them together (H and S are integrals of Cp; gef, ΔfG and log Kf are functions of the
-others). These checks find rows that break those ties: transcription errors, columns
+others). These checks find rows that break those ties: copying errors, columns
 taken from different data sets, columns in another unit.
 
 Integrals over a table use the not-a-knot cubic spline of Cp through its rows (never
@@ -95,7 +95,7 @@ def _integral_check(ctx: CheckContext, cid: str, column: str, integral: str, pch
                     f"(off by {r.res:+.3g}, tolerance {r.tol:.3g} incl. integration error {r.est:.2g}); "
                     f"{r.n_bad} of {n_rows[r.record_id]} rows fail")
         if r.n_bad == 1:
-            hints.append("one row off: a transcription error in that row (its value or its Cp)")
+            hints.append("one row off: a copying error in that row (its value or its Cp)")
         elif r.n_bad >= n_rows[r.record_id] - 1:
             hints.append("every row off: the reference row itself is wrong, or Cp and this column "
                          "come from different data sets or units")
@@ -183,7 +183,7 @@ def table_gibbs_identity(ctx: CheckContext) -> pd.DataFrame:
     def hint(r):
         if abs(r.obs + r.exp) < tol:
             return "sign: the column holds (G − H_ref)/T instead of −(G − H_ref)/T"
-        return "a transcription error, or gef relative to another reference (H(0) vs H(298.15))" \
+        return "a copying error, or gef relative to another reference (H(0) vs H(298.15))" \
             if r.n_bad < 3 else "gef computed with another H reference (e.g. H(0)) or another S column"
 
     return _per_row_findings(
@@ -217,7 +217,7 @@ def table_logk_identity(ctx: CheckContext) -> pd.DataFrame:
             return "sign: ΔfG = −RT ln K (the column has the opposite sign)"
         if abs(r.exp) > 10 * tol and abs(r.obs / r.exp * 4.184 - 1) < 0.01:
             return "ΔfG in calories: the dfg column's unit is wrong"
-        return "a transcription error in log Kf or in ΔfG"
+        return "a copying error in log Kf or in ΔfG"
 
     return _per_row_findings(
         cid, rows, observed, expected, tol, "1",
