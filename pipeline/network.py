@@ -571,7 +571,8 @@ class _Component:
 
     def _exact_h(self, rows: np.ndarray) -> np.ndarray:
         B = self.J[rows].T.toarray()
-        Y = block_pcg(self.M, B, self.dinv, rtol=1e-8)
+        # 1e-6: h to ~1e-6, far inside what the |t| > 3 test can resolve
+        Y = block_pcg(self.M, B, self.dinv, rtol=1e-6)
         return np.clip((B * Y).sum(axis=0), 0.0, 1.0)
 
     def _pred_vars(self, Ak) -> np.ndarray:
@@ -740,27 +741,6 @@ def block_pcg(M, B: np.ndarray, dinv: np.ndarray, *, x0: np.ndarray | None = Non
         beta = np.divide(rz_new, rz, out=np.zeros(k), where=rz > 0)
         P *= beta
         P += Z
-        rz = rz_new
-    return X
-    maxiter = maxiter or min(20 * n + 100, 20000)
-    Rm = B - M @ X
-    bnorm = np.linalg.norm(B, axis=0)
-    bnorm = np.where(bnorm > 0, bnorm, 1.0)
-    Z = dinv[:, None] * Rm
-    P = Z.copy()
-    rz = (Rm * Z).sum(axis=0)
-    for _ in range(maxiter):
-        if np.all(np.linalg.norm(Rm, axis=0) <= rtol * bnorm):
-            break
-        Q = M @ P
-        pq = (P * Q).sum(axis=0)
-        alpha = np.divide(rz, pq, out=np.zeros(k), where=pq > 0)
-        X += alpha * P
-        Rm -= alpha * Q
-        Z = dinv[:, None] * Rm
-        rz_new = (Rm * Z).sum(axis=0)
-        beta = np.divide(rz_new, rz, out=np.zeros(k), where=rz > 0)
-        P = Z + beta * P
         rz = rz_new
     return X
 
