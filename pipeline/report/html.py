@@ -318,6 +318,11 @@ def render_html(run, findings: pd.DataFrame) -> str:
     out.append("<h3>By check and severity</h3><p class=\"small\">Counts are unwaived findings; "
                "a number links to those findings in the table below.</p>")
     out.append(_counts_table(live, waived, "check_id", "check", link=True))
+    seen = set(f["check_id"].dropna())
+    quiet = [c for c in dict.fromkeys(run.extra.get("checks_ran", [])) if c not in seen]
+    if quiet:
+        out.append(f'<p class="small">Checks that ran and found nothing ({len(quiet)}): '
+                   + ", ".join(f"<code>{_e(c)}</code>" for c in quiet) + "</p>")
     out.append("<h3>By source</h3>")
     out.append(_counts_table(live, waived, "source_id", "source", link=False))
 
