@@ -66,15 +66,16 @@ with open(sys.argv[1], "w") as fh:
 def measured(cmd: list[str], tag: Path) -> dict:
     """Run ``cmd`` under the launcher; returns rc, wall_s, peak_mb, stdout, stderr."""
     out = tag.with_suffix(".measure.json")
-    subprocess.run([sys.executable, "-c", _LAUNCHER, str(out), *cmd], check=True)
+    env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
+    subprocess.run([sys.executable, "-c", _LAUNCHER, str(out), *cmd], check=True, env=env)
     res = json.loads(out.read_text())
     res["peak_mb"] = res.pop("maxrss_kb") / 1024.0
     return res
 
 
 def thermoledger_cmd() -> list[str]:
-    exe = Path(sys.executable).parent / "thermoledger"
-    return [str(exe)] if exe.exists() else [sys.executable, "-c", "from pipeline.cli.app import main; main()"]
+    """``thermoledger`` from the code beside this script (PYTHONPATH is set to it in ``measured``)."""
+    return [sys.executable, "-c", "from pipeline.cli.app import main; main()"]
 
 
 def generate(n: int, work: Path, seed: int) -> tuple[Path, float]:
@@ -139,8 +140,9 @@ print(json.dumps({"numpy_s": t_np, "duckdb_s": t_db, "segments": len(coef), "gri
 
 
 def floor_of_release(db: Path) -> dict:
+    env = dict(os.environ, PYTHONPATH=str(ROOT) + os.pathsep + os.environ.get("PYTHONPATH", ""))
     p = subprocess.run([sys.executable, "-c", _FLOOR, str(db), str(FLOOR_GRID), str(ROOT)],
-                       check=True, capture_output=True, text=True)
+                       check=True, capture_output=True, text=True, env=env)
     return json.loads(p.stdout.strip().splitlines()[-1])
 
 

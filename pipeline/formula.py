@@ -29,6 +29,8 @@ ELECTRON = "e"
 
 _KEY = re.compile(r"^\s*(?P<formula>.+?)\((?P<state>[A-Za-z]+)(?:,(?P<label>[^()]+))?\)\s*$")
 _CHARGE = re.compile(r"(?P<sign>[+-]+)(?P<n>\d*)$")
+_SIMPLE = re.compile(r"(?:[A-Z][a-z]?(?:\d+(?:\.\d+)?)?)+")
+_SIMPLE_TOKEN = re.compile(r"([A-Z][a-z]?)(\d+(?:\.\d+)?)?")
 _TOKEN = re.compile(r"([A-Z][a-z]?)|(\d+(?:\.\d+)?)|(\()|(\))|(\[)|(\])")
 
 
@@ -59,8 +61,7 @@ class Formula:
     def molar_mass_g_mol(self) -> float:
         """Molar mass [g/mol] from IUPAC abridged standard atomic weights (periodictable);
         the electron mass (5.486e-4 g/mol) is added or removed for ions."""
-        m = sum(periodictable.elements.symbol(el).mass * n
-                for el, n in self.elements.items() if el != ELECTRON)
+        m = sum(_atomic_mass(el) * n for el, n in self.elements.items() if el != ELECTRON)
         return float(m - self.charge * 5.48579909e-4)
 
 
@@ -95,6 +96,12 @@ def parse_key(text: str) -> SpeciesKey:
                            "use IUPAC state notation: g, l, cr or aq")
     label = m.group("label").strip() if m.group("label") else None
     return SpeciesKey(m.group("formula").strip(), state, label)
+
+
+@lru_cache(maxsize=512)
+def _atomic_mass(sym: str) -> float:
+    """Standard atomic weight [g/mol] of an element symbol (periodictable, cached)."""
+    return periodictable.elements.symbol(sym).mass
 
 
 @lru_cache(maxsize=512)
@@ -135,6 +142,19 @@ def _parse_formula_cached(text: str) -> tuple[tuple[tuple[str, float], ...], int
         body = body[: m.start()]
     if not body:
         raise FormulaError(text, "empty formula", "write a formula such as H2O")
+    if _SIMPLE.fullmatch(body):
+        # symbols and counts only (most formulas): the same sums as the general parser below
+        simple: dict[str, float] = {}
+        for sym, num in _SIMPLE_TOKEN.findall(body):
+            if not _is_element(sym):
+                break                      # the general parser raises the exact error
+            simple[sym] = simple.get(sym, 0.0) + 1.0
+            if num:
+                simple[sym] += float(num) - 1
+        else:
+            elems = {k: v for k, v in simple.items() if v != 0}
+            if elems:
+                return tuple(sorted(elems.items())), charge
     if "·" in body or "*" in body:
         # adduct: parts joined by '·' (or '*'), each with an optional leading multiplier
         total: dict[str, float] = {}

@@ -395,7 +395,7 @@ class RecordFunctions:
     def tables(self) -> _Anchored:
         tp = self.table_points
         tables = self.kind.index[self.kind.to_numpy() == "table"]
-        return _Anchored(tp[tp["record_id"].isin(tables)])
+        return _Anchored(tp[member(tp["record_id"], tables)])
 
     def evaluate(self, record_ids, t_k) -> Values:
         """Values for (record, T) pairs; ``record_ids`` and ``t_k`` broadcast to one shape.
@@ -439,6 +439,31 @@ class RecordFunctions:
             cp[is_tab], h[is_tab], s[is_tab], hmh[is_tab] = tb.evaluate(rank, t[is_tab])
         g = h - t * s
         return Values(*(a.reshape(shape) for a in (cp, h, s, g, hmh)))
+
+
+def member(values, pool) -> np.ndarray:
+    """Elementwise ``value in pool`` for text keys (record ids, species), as a bool array.
+
+    Arrow's hash kernel (``pyarrow.compute.is_in``): pandas' ``isin`` on string columns
+    turns every pool value into a Python object first, which dominates the checks at 10⁵
+    records. Anything that is not plain text (numbers, nulls in the pool) goes through
+    pandas' ``isin``, so the result is always the same.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if isinstance(pool, (set, frozenset)):
+        pool = list(pool)
+    vals = values.to_numpy(object) if isinstance(values, (pd.Series, pd.Index)) else np.asarray(values, dtype=object)
+    p = pool.to_numpy(object) if isinstance(pool, (pd.Series, pd.Index)) else np.asarray(pool, dtype=object)
+    try:
+        va = pa.array(vals, type=pa.string(), from_pandas=True)
+        pa_pool = pa.array(p, type=pa.string(), from_pandas=False)
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return pd.Series(vals, dtype=object).isin(p).to_numpy(bool)
+    if pa_pool.null_count:
+        return pd.Series(vals, dtype=object).isin(p).to_numpy(bool)
+    return pc.is_in(va, value_set=pa_pool, skip_nulls=True).to_numpy(zero_copy_only=False)
 
 
 def preferred_record_ids(records: pd.DataFrame, sources: pd.DataFrame | None = None,

@@ -112,11 +112,17 @@ def stage_ingest(run: Run) -> None:
 
 
 def _reaction_species(reactions: pd.DataFrame) -> list[str]:
+    """Every species key of every reaction (with repeats), from the stoichiometry JSON: the
+    keys of all rows are found in one regular-expression pass over the joined text (a key is
+    a JSON string followed by ': '); a key with an escape is decoded by ``json``."""
     import json
-    out: list[str] = []
-    for s in reactions["stoich_json"].dropna():
-        out.extend(json.loads(s).keys())
-    return out
+    import re
+
+    texts = [s for s in reactions["stoich_json"].to_numpy(object) if isinstance(s, str)]
+    if not texts:
+        return []
+    keys = re.findall(r'"((?:[^"\\]|\\.)*)": ', "\n".join(texts))
+    return [json.loads(f'"{k}"') if "\\" in k else k for k in keys]
 
 
 def _reject_records(run: Run, recs: pd.DataFrame, reasons: list[str]) -> None:
@@ -126,14 +132,16 @@ def _reject_records(run: Run, recs: pd.DataFrame, reasons: list[str]) -> None:
     rows and a Shomate record's rows (one per segment) one by one, any other record once.
     ``raw_text`` is read back verbatim from the raw file.
     """
+    from .functions import member
+
     ids = set(recs["record_id"])
     reason_of = dict(zip(recs["record_id"], reasons))
     root = run.manifest.root if run.manifest is not None else run.raw
     cache: dict = {}
     seg = run.frames["segments"]
     tp = run.frames["table_points"]
-    in_seg = seg["record_id"].isin(ids)
-    in_tp = tp["record_id"].isin(ids)
+    in_seg = member(seg["record_id"], ids)
+    in_tp = member(tp["record_id"], ids)
     n_seg = seg[in_seg].groupby("record_id").size()
     per_row = (recs["kind"].eq("table") | recs["form"].eq("shomate")).to_numpy()
     whole = recs[~per_row]
@@ -147,7 +155,7 @@ def _reject_records(run: Run, recs: pd.DataFrame, reasons: list[str]) -> None:
     file_of = dict(zip(recs["record_id"], recs["file"]))
     source_of = dict(zip(recs["record_id"], recs["source_id"]))
     shomate_ids = set(recs.loc[recs["form"].eq("shomate"), "record_id"])
-    for rows_of in (tp[in_tp], seg[in_seg & seg["record_id"].isin(shomate_ids)]):
+    for rows_of in (tp[in_tp], seg[in_seg & member(seg["record_id"], shomate_ids)]):
         if len(rows_of):
             parts.append(pd.DataFrame({
                 "source_id": rows_of["record_id"].map(source_of).to_numpy(),

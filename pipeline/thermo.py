@@ -77,9 +77,21 @@ def heat_capacity(coef: np.ndarray, t_k: np.ndarray) -> np.ndarray:
     """Cp [J/(mol*K)] alone (cheaper than :func:`evaluate` when H, S, G are not needed)."""
     c = np.asarray(coef, dtype=float)
     t = np.asarray(t_k, dtype=float)
-    inv = 1.0 / t
-    poly = c[..., 2] + t * (c[..., 3] + t * (c[..., 4] + t * (c[..., 5] + t * c[..., 6])))
-    return R * (inv * (c[..., 0] * inv + c[..., 1]) + poly)
+    shape = np.broadcast_shapes(c.shape[:-1], t.shape)
+    # Horner in place (the same operations in the same order as the plain expression
+    # c2 + t(c3 + t(c4 + t(c5 + t c6))) + (c0/T + c1)/T, without a temporary per step)
+    acc = np.multiply(t, c[..., 6], out=np.empty(shape))
+    for k in (5, 4, 3):
+        acc += c[..., k]
+        acc *= t
+    acc += c[..., 2]
+    inv = np.divide(1.0, t, out=np.empty(shape)) if t.shape == shape else 1.0 / t
+    low = np.multiply(c[..., 0], inv, out=np.empty(shape))
+    low += c[..., 1]
+    low *= inv
+    low += acc
+    low *= R
+    return low
 
 
 def on_grid(coef: np.ndarray, t_k: np.ndarray) -> Properties:

@@ -114,6 +114,7 @@ def _dedupe_reactions(run) -> None:
 
 def validate_frames(run) -> None:
     """Validate every staging frame and move failing rows (whole records) to ``rejected``."""
+    from .functions import member
     from .ingest.base import read_back
     from .stages import _reject_records
 
@@ -145,7 +146,7 @@ def validate_frames(run) -> None:
                      else f"segment {fr.at[i, 'segment']}" + (f" (line {int(ln)})" if pd.notna(ln) else ""))
             reasons.setdefault(rid, f"{where}: {why}")
     if reasons:
-        bad = rec[rec["record_id"].isin(reasons)]
+        bad = rec[member(rec["record_id"], set(reasons))]
         _reject_records(run, bad, [f"record {n} rejected whole: {reasons[r]}"
                                    for r, n in zip(bad["record_id"], bad["name"])])
-        f["records"] = rec[~rec["record_id"].isin(reasons)].reset_index(drop=True)
+        f["records"] = rec[~member(rec["record_id"], set(reasons))].reset_index(drop=True)

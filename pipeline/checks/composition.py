@@ -36,7 +36,10 @@ def composition_molar_mass(ctx: CheckContext) -> pd.DataFrame:
     sp = ctx.species
     if len(sp) == 0:
         return empty_findings()
-    counts = _element_counts(sp["elements_json"])
+    el = ctx.elements
+    counts = (el.pivot(index="species", columns="element", values="n")
+              .reindex(sp["species"].to_numpy(object)).fillna(0.0).astype(float))
+    counts.index = sp.index
     interval_cols = [c for c in counts.columns if c in INTERVAL_ELEMENTS]
     n_interval = counts[interval_cols].sum(axis=1) if interval_cols else pd.Series(0.0, index=sp.index)
     base = sp[["species", "molar_mass_g_mol"]].assign(n_interval=n_interval.to_numpy(float))

@@ -5,6 +5,7 @@ segment index, exact Cp extrema per segment) are computed once and cached.
 """
 from __future__ import annotations
 
+import json
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -45,9 +46,41 @@ class CheckContext:
 
         return RecordFunctions(self.records, self.segments, self.table_points)
 
+    def cached(self, name: str, build):
+        """``build()`` computed once per context and kept under ``name``: derived frames that
+        several checks share (callers must not modify what they get)."""
+        store = self.__dict__.setdefault("_memo", {})
+        if name not in store:
+            store[name] = build()
+        return store[name]
+
+    @cached_property
+    def preferred(self) -> pd.Series:
+        """Preferred record id per species (index: species key), by
+        :func:`pipeline.functions.preferred_record_ids` over every record and ``sources``."""
+        from ..functions import preferred_record_ids
+
+        return preferred_record_ids(self.records, self.sources)
+
+    @cached_property
+    def elements(self) -> pd.DataFrame:
+        """Element counts of every species, long: ``species, element, n`` (atoms per formula
+        unit, from ``elements_json``; electrons not included, zero counts dropped)."""
+        sp = self.species
+        keys, els, ns = [], [], []
+        for key, j in zip(sp["species"].to_numpy(object), sp["elements_json"].to_numpy(object)):
+            if isinstance(j, str) and j:
+                for e, n in json.loads(j).items():
+                    keys.append(key)
+                    els.append(e)
+                    ns.append(float(n))
+        out = pd.DataFrame({"species": pd.Series(keys, dtype=object), "element": pd.Series(els, dtype=object),
+                            "n": np.asarray(ns, float)})
+        return out[out["n"] != 0].reset_index(drop=True)
+
     @cached_property
     def seg_index(self) -> SegmentIndex:
-        return SegmentIndex.from_frame(self.segments)
+        return self.functions.seg_index      # one index for the checks and the functions
 
     @cached_property
     def record_species(self) -> pd.DataFrame:
@@ -99,13 +132,23 @@ def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int
     roots_all = np.full((n, 6), np.nan)
     nz = poly != 0
     lead = np.where(nz.any(axis=1), nz.argmax(axis=1), 7)  # index of first nonzero coefficient
-    for k in np.unique(lead):
-        deg = 6 - k
+    # trailing zero coefficients are roots at T = 0 (NASA-7 segments: a1 = a2 = 0 gives a
+    # cubic times T³): divided out, so a smaller companion matrix is solved; T = 0 is kept
+    # as a root (never inside a range of positive temperatures)
+    trail = np.where(nz.any(axis=1), nz[:, ::-1].argmax(axis=1), 0)
+    for code in np.unique(lead * 8 + trail):
+        k, z = int(code) // 8, int(code) % 8
+        deg = 6 - k - z
+        rows = np.flatnonzero((lead == k) & (trail == z))
+        if z and deg >= 0:
+            roots_all[rows, max(deg, 0)] = 0.0
         if deg < 1:
             continue
-        rows = np.flatnonzero(lead == k)
-        p = poly[rows, k:]
+        p = poly[rows, k:7 - z]
         p = p / p[:, :1]
+        if deg == 3:        # the NASA-7 case: closed form (many times faster than eigenvalues)
+            roots_all[rows, :3] = _cubic_real_roots(p)
+            continue
         comp = np.zeros((len(rows), deg, deg))
         comp[:, 0, :] = -p[:, 1:]
         if deg > 1:
@@ -123,6 +166,36 @@ def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int
     imax = np.nanargmax(cp, axis=1)
     rows = np.arange(n)
     return t[rows, imin], cp[rows, imin], t[rows, imax], cp[rows, imax]
+
+
+def _cubic_real_roots(p: np.ndarray) -> np.ndarray:
+    """Real roots of monic cubics x³ + a x² + b x + c (rows of ``p`` = [1, a, b, c]), NaN
+    where a root is complex; (m, 3).
+
+    Trigonometric form for three real roots, Cardano's for one (Press et al., *Numerical
+    Recipes*, 3rd ed., 2007, §5.6), each root then polished by two Newton steps on the cubic
+    itself, which restores full precision where the closed form loses digits. A double root
+    (a point of inflection of Cp, never an extremum) may come out once only.
+    """
+    a, b, c = p[:, 1], p[:, 2], p[:, 3]
+    q = (a * a - 3.0 * b) / 9.0
+    r = (2.0 * a ** 3 - 9.0 * a * b + 27.0 * c) / 54.0
+    out = np.full((len(p), 3), np.nan)
+    with np.errstate(all="ignore"):
+        three = r * r < q ** 3
+        sq = np.sqrt(np.where(three, q, 0.0))
+        theta = np.arccos(np.clip(np.where(three, r / np.where(three, sq ** 3, 1.0), 0.0), -1.0, 1.0))
+        for j, shift in enumerate((0.0, 2 * np.pi, -2 * np.pi)):
+            out[:, j] = np.where(three, -2.0 * sq * np.cos((theta + shift) / 3.0) - a / 3.0, np.nan)
+        big = -np.sign(r) * np.cbrt(np.abs(r) + np.sqrt(np.maximum(r * r - q ** 3, 0.0)))
+        one = np.where(big != 0, big + q / np.where(big != 0, big, 1.0), 0.0) - a / 3.0
+        out[:, 0] = np.where(three, out[:, 0], one)
+        for _ in range(2):
+            f = ((out + a[:, None]) * out + b[:, None]) * out + c[:, None]
+            df = (3.0 * out + 2.0 * a[:, None]) * out + b[:, None]
+            step = np.where(np.isfinite(df) & (df != 0), f / np.where(df != 0, df, 1.0), 0.0)
+            out = out - np.where(np.isfinite(step), step, 0.0)
+    return out
 
 
 def r_units(x: np.ndarray) -> np.ndarray:

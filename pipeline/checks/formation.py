@@ -6,6 +6,7 @@ import pandas as pd
 
 from ..constants import CAL_TH_J, R, T_REF
 from ..findings import empty_findings, make_findings
+from ..functions import member
 from .context import CheckContext
 from .registry import check
 
@@ -47,8 +48,8 @@ def formation_reference_element(ctx: CheckContext) -> pd.DataFrame:
         return empty_findings()
     warn_t, err_t = ctx.tol(cid, "warning_j_mol"), ctx.tol(cid, "error_j_mol")
     rows = []
-    rec = ctx.records[ctx.records["species"].isin(ref)]
-    poly = rec[(rec["kind"] == "polynomial") & rec["record_id"].isin(ctx.segments["record_id"])]
+    rec = ctx.records[member(ctx.records["species"], ref)]
+    poly = rec[(rec["kind"] == "polynomial") & member(rec["record_id"], ctx.seg_index.record_ids)]
     if len(poly):
         h = _h298(ctx, poly["record_id"].to_numpy())
         rows.append(pd.DataFrame({
@@ -57,7 +58,7 @@ def formation_reference_element(ctx: CheckContext) -> pd.DataFrame:
     tp = ctx.table_points
     tab_ids = rec.loc[rec["kind"] == "table", "record_id"]
     if len(tp) and len(tab_ids):
-        pts = tp[tp["record_id"].isin(tab_ids)].merge(rec[["record_id", "species"]], on="record_id")
+        pts = tp[member(tp["record_id"], tab_ids)].merge(rec[["record_id", "species"]], on="record_id")
         long = pd.concat([
             pts[["record_id", "species", "source_id", "t_k"]].assign(observed=pts["dfh_j_mol"], what="ΔfH"),
             pts[["record_id", "species", "source_id", "t_k"]].assign(observed=pts["dfg_j_mol"], what="ΔfG")],
@@ -112,7 +113,7 @@ def formation_stated_vs_polynomial(ctx: CheckContext) -> pd.DataFrame:
     """
     cid = "formation.stated-vs-polynomial"
     rec = ctx.records
-    rec = rec[(rec["kind"] == "polynomial") & rec["record_id"].isin(ctx.segments["record_id"])
+    rec = rec[(rec["kind"] == "polynomial") & member(rec["record_id"], ctx.seg_index.record_ids)
               & pd.to_numeric(rec["stated_dfh_j_mol"], errors="coerce").notna()]
     if len(rec) == 0:
         return empty_findings()

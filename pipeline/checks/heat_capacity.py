@@ -25,9 +25,8 @@ def cp_nonpositive(ctx: CheckContext) -> pd.DataFrame:
     parts = []
     seg = ctx.segment_species
     if len(seg):
-        coef = seg[["a1", "a2", "a3", "a4", "a5", "a6", "a7", "b1", "b2"]].to_numpy(float)
-        t_min, cp_min, _, _ = cp_extrema(coef, seg["t_low_k"].to_numpy(float), seg["t_high_k"].to_numpy(float))
-        seg = seg.assign(t_min=t_min, cp_min=cp_min)
+        ext = segment_cp_extrema(ctx)        # shared with the other Cp checks (computed once)
+        seg = seg.assign(t_min=ext["t_min_k"].to_numpy(float), cp_min=ext["cp_min"].to_numpy(float))
         worst = seg.loc[seg.groupby("record_id")["cp_min"].idxmin()]
         bad = worst[worst["cp_min"] <= 0]
         if len(bad):

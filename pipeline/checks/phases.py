@@ -34,17 +34,26 @@ def species_forms(ctx: CheckContext) -> pd.DataFrame:
     source_id, kind, t_low_k, t_high_k, element`` (the element of a one-element species,
     else None) and ``k`` (its atoms per formula unit).
     """
+    return ctx.cached("phases.species_forms", lambda: _species_forms(ctx))
+
+
+def _species_forms(ctx: CheckContext) -> pd.DataFrame:
     sp = ctx.species.copy()
-    pref = preferred_record_ids(ctx.records, getattr(ctx, "sources", None))
-    sp["record_id"] = sp["species"].map(pref)
+    pref = ctx.preferred
+    sp["record_id"] = pref.reindex(sp["species"].to_numpy(object)).to_numpy(object)
     sp = sp.dropna(subset=["record_id"])
     rec = ctx.records.drop_duplicates("record_id").set_index("record_id")
+    pos = rec.index.get_indexer(sp["record_id"].to_numpy(object))
     for c in ("source_id", "kind", "t_low_k", "t_high_k"):
-        sp[c] = sp["record_id"].map(rec[c])
-    el = sp["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
-    one = (el.map(len) == 1) & (sp["charge"].fillna(0) == 0)
-    sp["element"] = np.where(one, el.map(lambda d: next(iter(d)) if len(d) == 1 else None), None)
-    sp["k"] = np.where(one, el.map(lambda d: float(next(iter(d.values()))) if len(d) == 1 else np.nan), np.nan)
+        sp[c] = rec[c].to_numpy()[pos]
+    # one-element species: their element and atoms per formula unit (from ctx.elements)
+    el = ctx.elements
+    per = el.groupby("species", sort=False).agg(n_el=("element", "size"), element=("element", "first"),
+                                                 k=("n", "first"))
+    per = per.reindex(sp["species"].to_numpy(object))
+    one = (per["n_el"].to_numpy(float) == 1) & (sp["charge"].fillna(0).to_numpy(float) == 0)
+    sp["element"] = np.where(one, per["element"].to_numpy(object), None)
+    sp["k"] = np.where(one, per["k"].to_numpy(float), np.nan)
     sp["reference_element"] = sp["reference_element"].fillna(False).astype(bool)
     return sp.reset_index(drop=True)
 
@@ -56,9 +65,13 @@ def species_values(ctx: CheckContext, forms: pd.DataFrame, idx: np.ndarray, t_k:
     idx, t = np.broadcast_arrays(np.asarray(idx), np.asarray(t_k, float))
     i = idx.ravel()
     tt = t.ravel()
-    v = ctx.functions.evaluate(forms["record_id"].to_numpy(object)[i], tt)
-    inside = (tt >= forms["t_low_k"].to_numpy(float)[i] - 1e-6) & (tt <= forms["t_high_k"].to_numpy(float)[i] + 1e-6)
-    h = np.where(np.isnan(v.h) & forms["reference_element"].to_numpy(bool)[i], v.h_minus_h298, v.h)
+    # only the rows asked for leave Arrow (a text column of every species costs more than this)
+    u, inv = np.unique(i, return_inverse=True)
+    sub = forms.iloc[u]
+    rid = sub["record_id"].to_numpy(object)[inv]
+    v = ctx.functions.evaluate(rid, tt)
+    inside = (tt >= sub["t_low_k"].to_numpy(float)[inv] - 1e-6) & (tt <= sub["t_high_k"].to_numpy(float)[inv] + 1e-6)
+    h = np.where(np.isnan(v.h) & sub["reference_element"].to_numpy(bool)[inv], v.h_minus_h298, v.h)
     nan = np.where(inside, 1.0, np.nan)
     s = v.s * nan
     h = h * nan
@@ -190,6 +203,12 @@ def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
     if not len(rx):
         return pd.DataFrame()
     rx = rx[rx["quantity"].isin(["drg", "drh"])]
+    # only two-species reactions can be transitions: without a backslash (no escaped quote
+    # in a key) a stoich JSON has exactly one '": ' per species, so the rest are not parsed
+    js = rx["stoich_json"].astype(object).where(rx["stoich_json"].notna(), "")
+    txt = js.astype(str)
+    maybe = (txt.str.count('": ', ) == 2) | txt.str.contains("\\", regex=False)
+    rx = rx[maybe.to_numpy(bool)]
     st = rx["stoich_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
     two = st.map(len) == 2
     rx, st = rx[two], st[two]

@@ -19,7 +19,7 @@ import pandas as pd
 
 from ..constants import LN10, R, T_REF
 from ..findings import empty_findings, make_findings
-from ..functions import T_REF_MATCH_K, TableCurves, preferred_record_ids
+from ..functions import T_REF_MATCH_K, TableCurves, member
 from .context import CheckContext
 from .registry import check
 
@@ -27,15 +27,24 @@ from .registry import check
 def table_nodes(ctx: CheckContext) -> pd.DataFrame:
     """Rows of every table record that tabulate Cp, sorted by record and T (one row per T),
     with species, and the spline and PCHIP integrals ∫Cp dT [J/mol], ∫Cp/T dT [J/(mol*K)]
-    from the record's first row (columns ``i_cp, i_cp_t, p_cp, p_cp_t``)."""
+    from the record's first row (columns ``i_cp, i_cp_t, p_cp, p_cp_t``). Computed once per
+    context (the integral checks share it)."""
+    return ctx.cached("tables.table_nodes", lambda: _table_nodes(ctx))
+
+
+def _table_nodes(ctx: CheckContext) -> pd.DataFrame:
     tables = ctx.records.loc[ctx.records["kind"] == "table", ["record_id", "species"]]
     tp = ctx.table_points
-    tp = tp[tp["record_id"].isin(tables["record_id"]) & tp["cp_j_mol_k"].notna() & tp["t_k"].notna()]
+    tp = tp[member(tp["record_id"], tables["record_id"]) & tp["cp_j_mol_k"].notna() & tp["t_k"].notna()]
     tp = tp.sort_values(["record_id", "t_k"], kind="stable").drop_duplicates(["record_id", "t_k"])
     nodes = tp.merge(tables, on="record_id", how="left", validate="many_to_one")
     if not len(nodes):
         return nodes
-    spline = TableCurves.from_points(nodes, "spline")
+    # the species functions already hold the spline of exactly these nodes: reuse it
+    spline = ctx.functions.tables.curves
+    if not (np.array_equal(spline.t, nodes["t_k"].to_numpy(float))
+            and np.array_equal(spline.record_ids, nodes["record_id"].drop_duplicates().to_numpy(str))):
+        spline = TableCurves.from_points(nodes, "spline")
     pchip = TableCurves.from_points(nodes, "pchip")
     if not np.array_equal(spline.t, nodes["t_k"].to_numpy(float)):   # same sort, same rows
         raise RuntimeError("table nodes and spline nodes are out of step (internal error)")
@@ -144,7 +153,7 @@ def table_entropy_integral(ctx: CheckContext) -> pd.DataFrame:
 def _row_frame(ctx: CheckContext) -> pd.DataFrame:
     tables = ctx.records.loc[ctx.records["kind"] == "table", ["record_id", "species"]]
     tp = ctx.table_points
-    tp = tp[tp["record_id"].isin(tables["record_id"]) & (tp["t_k"] > 0)]
+    tp = tp[member(tp["record_id"], tables["record_id"]) & (tp["t_k"] > 0)]
     return tp.merge(tables, on="record_id", how="left")
 
 
@@ -225,12 +234,16 @@ def table_logk_identity(ctx: CheckContext) -> pd.DataFrame:
         hint)
 
 
-def element_counts(species: pd.DataFrame) -> pd.DataFrame:
+def element_counts(species: pd.DataFrame, elements: pd.DataFrame | None = None) -> pd.DataFrame:
     """Long frame ``species, element, n`` of atoms per formula unit; an ion also gets the
-    pseudo-element ``e`` with n = −charge (electrons taken up on formation)."""
-    parsed = species["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
-    el = pd.DataFrame([(k, e, float(n)) for k, d in zip(species["species"], parsed) for e, n in d.items()],
-                      columns=["species", "element", "n"])
+    pseudo-element ``e`` with n = −charge (electrons taken up on formation). ``elements``:
+    the parsed counts when already at hand (``CheckContext.elements``)."""
+    if elements is None:
+        parsed = species["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
+        el = pd.DataFrame([(k, e, float(n)) for k, d in zip(species["species"], parsed) for e, n in d.items()],
+                          columns=["species", "element", "n"])
+    else:
+        el = elements[["species", "element", "n"]]
     ions = species[species["charge"].fillna(0) != 0]
     e = pd.DataFrame({"species": ions["species"], "element": "e", "n": -ions["charge"].astype(float)})
     out = pd.concat([el, e], ignore_index=True)
@@ -248,14 +261,15 @@ def reference_entropies(ctx: CheckContext, t_k: np.ndarray) -> pd.DataFrame:
     ref_species``.
     """
     sp = ctx.species
-    single = sp["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
-    is_el = sp["reference_element"].fillna(False).astype(bool) & (single.map(len) == 1) & (sp["charge"] == 0)
-    el = sp[is_el].assign(element=single[is_el].map(lambda d: next(iter(d))),
-                          k=single[is_el].map(lambda d: float(next(iter(d.values())))))
+    is_ref = sp["reference_element"].fillna(False).astype(bool).to_numpy()
+    refs = sp[is_ref]
+    single = refs["elements_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
+    is_el = (single.map(len) == 1) & (refs["charge"] == 0)
+    el = refs[is_el].assign(element=single[is_el].map(lambda d: next(iter(d))),
+                            k=single[is_el].map(lambda d: float(next(iter(d.values())))))
     electron = sp[sp["formula"] == "e-"].assign(element="e", k=1.0)
     cand = pd.concat([el, electron], ignore_index=True)[["species", "element", "k"]]
-    pref = preferred_record_ids(ctx.records, getattr(ctx, "sources", None))
-    cand["record_id"] = cand["species"].map(pref)
+    cand["record_id"] = ctx.preferred.reindex(cand["species"].to_numpy(object)).to_numpy(object)
     cand = cand.dropna(subset=["record_id"]).merge(ctx.records[["record_id", "t_low_k", "t_high_k"]],
                                                    on="record_id", how="left")
     t = np.unique(np.asarray(t_k, float))
@@ -298,7 +312,7 @@ def table_formation_identity(ctx: CheckContext) -> pd.DataFrame:
     t = rows["t_k"].to_numpy(float)
     s_species = ctx.functions.evaluate(rows["record_id"].to_numpy(object), t).s
     rows = rows.assign(row=np.arange(len(rows)), s=s_species)
-    long = rows[["row", "species"]].merge(element_counts(ctx.species), on="species", how="inner")
+    long = rows[["row", "species"]].merge(element_counts(ctx.species, ctx.elements), on="species", how="inner")
     long["t_k"] = t[long["row"].to_numpy(int)]
     ref = reference_entropies(ctx, t)
     long = long.merge(ref, on=["element", "t_k"], how="left")

@@ -7,6 +7,7 @@ from scipy.linalg import solve_banded
 
 from ..constants import R, R_LN_ATM
 from ..findings import empty_findings, make_findings
+from ..functions import member
 from ..physics import debye_entropy, debye_temperature, sackur_tetrode_entropy
 from ..thermo import COEF_COLUMNS, evaluate
 from .context import CheckContext
@@ -238,7 +239,7 @@ def thirdlaw_calorimetric_entropy(ctx: CheckContext) -> pd.DataFrame:
         return empty_findings()
     rs = ctx.record_species
     cond = rs[rs["state"].isin(CONDENSED) & (rs["kind"] == "table")]
-    pts = tp[tp["record_id"].isin(cond["record_id"]) & (tp["t_k"] > 0) & tp["cp_j_mol_k"].notna()]
+    pts = tp[member(tp["record_id"], cond["record_id"]) & (tp["t_k"] > 0) & tp["cp_j_mol_k"].notna()]
     if len(pts) == 0:
         return empty_findings()
     pts = pts.sort_values(["record_id", "t_k"], kind="stable").drop_duplicates(["record_id", "t_k"])
@@ -367,7 +368,7 @@ def thirdlaw_gas_entropy_floor(ctx: CheckContext) -> pd.DataFrame:
     if len(tp):
         rs = ctx.record_species
         gas_tab = rs[(rs["state"] == "g") & (rs["kind"] == "table")]
-        pts = tp[tp["record_id"].isin(gas_tab["record_id"]) & (tp["t_k"] > 0) & tp["s_j_mol_k"].notna()]
+        pts = tp[member(tp["record_id"], gas_tab["record_id"]) & (tp["t_k"] > 0) & tp["s_j_mol_k"].notna()]
         if len(pts):
             pts = pts.merge(gas_tab[["record_id", "species"]], on="record_id", how="left")
             st = sackur_tetrode_entropy(pts["t_k"].to_numpy(float),

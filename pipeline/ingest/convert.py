@@ -22,6 +22,7 @@ import pandas as pd
 
 from ..constants import GASEOUS_REFERENCE_ATOMICITY, LN10, R
 from ..findings import make_findings
+from ..functions import member
 
 
 def reference_gas_atomicity(species: pd.DataFrame) -> dict[str, float]:
@@ -68,12 +69,12 @@ def standard_state(run) -> None:
         recs = f["records"][rec_mask]
         gas_ids = set(recs.loc[recs["species"].map(state).eq("g"), "record_id"])
         seg = f["segments"]
-        m = seg["record_id"].isin(gas_ids)
+        m = member(seg["record_id"], gas_ids)
         seg.loc[m, "b2"] = seg.loc[m, "b2"].astype(float) + lnr
         tp = f["table_points"]
         if len(tp):
-            tm = tp["record_id"].isin(set(recs["record_id"]))
-            gm = tm & tp["record_id"].isin(gas_ids)
+            tm = member(tp["record_id"], recs["record_id"])
+            gm = tm & member(tp["record_id"], gas_ids)
             for col in ("s_j_mol_k", "gef_j_mol_k"):
                 tp.loc[gm, col] = tp.loc[gm, col].astype(float) + R * lnr
             dn = formation_delta_n(f["species"])

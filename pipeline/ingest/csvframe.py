@@ -8,6 +8,7 @@ the reason; a row is rejected once, with its first problem.
 """
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -99,7 +100,10 @@ def load(path: Path, rel: str, *, fmt: str, allowed: tuple[str, ...], required: 
     InputError
         No header, a duplicate, unknown or missing required column (line 1, with the fix).
     """
-    header, rows = read_rows(path)
+    plain = _read_plain(path)
+    header, rows = plain[0], None
+    if plain[0] is None:
+        header, rows = read_rows(path)
     if not header:
         raise InputError(rel, 1, "no header line", f"a {fmt} header", f"start the file with {example_header}")
     split = [split_header(h) for h in header]
@@ -118,22 +122,94 @@ def load(path: Path, rel: str, *, fmt: str, allowed: tuple[str, ...], required: 
         raise InputError(rel, 1, f"header without column(s) {missing}",
                          f"the required {fmt} columns " + ", ".join(required),
                          f"add them, e.g. {example_header}")
+    width = len(names)
+    if rows is None:
+        cells, early, n_rows = _plain_cells(plain[1], plain[2], names)
+        return CsvFrame(rel=rel, headers=[h.strip() for h in header], names=names,
+                        units={n: u for n, (_, u) in zip(names, split)}, cells=cells,
+                        early_rejects=early, n_rows=n_rows)
     early, good = [], []
-    for line, fields, raw in rows:
-        if is_csv_error(fields):
-            early.append((line, raw, f"CSV syntax: {fields[1]} — fix: quote fields that hold "
-                                     "commas or quotes"))
-        elif len(fields) > len(names):
-            early.append((line, raw, f"{len(fields)} fields but the header has {len(names)} — "
-                                     "fix: quote keys with commas, e.g. \"C(cr,graphite)\""))
+    for row in rows:
+        fields = row[1]
+        if len(fields) == width and not is_csv_error(fields):
+            good.append(row)
+        elif is_csv_error(fields):
+            early.append((row[0], row[2], f"CSV syntax: {fields[1]} — fix: quote fields that hold "
+                                          "commas or quotes"))
+        elif len(fields) > width:
+            early.append((row[0], row[2], f"{len(fields)} fields but the header has {width} — "
+                                          "fix: quote keys with commas, e.g. \"C(cr,graphite)\""))
         else:
-            cells = [f.strip() for f in fields] + [""] * (len(names) - len(fields))
-            good.append([line, raw] + cells)
-    cells = pd.DataFrame(good, columns=["_line", "_raw"] + names) if good else \
-        pd.DataFrame({c: pd.Series(dtype=object) for c in ["_line", "_raw"] + names})
+            good.append((row[0], fields + [""] * (width - len(fields)), row[2]))
+    if good:
+        # column by column: strip every cell (str.strip, as written), then one frame
+        lines, fields, raws = zip(*good)
+        columns = {"_line": list(lines), "_raw": list(raws)}
+        for name, col in zip(names, zip(*fields)):
+            columns[name] = list(map(str.strip, col))
+        cells = pd.DataFrame(columns)
+    else:
+        cells = pd.DataFrame({c: pd.Series(dtype=object) for c in ["_line", "_raw"] + names})
     return CsvFrame(rel=rel, headers=[h.strip() for h in header], names=names,
                     units={n: u for n, (_, u) in zip(names, split)}, cells=cells,
                     early_rejects=early, n_rows=len(rows))
+
+
+#: Characters that make a file take the general (csv module) path: quotes and NUL change
+#: how fields split; the others are line breaks for str.splitlines but not for csv.
+_NOT_PLAIN = re.compile('["\x00\x0b\x0c\x1c-\x1f\x7f]|\r(?!\n)')
+
+
+def _read_plain(path: Path):
+    """(header, data lines, their line numbers) of a *plain* CSV file — ASCII, no quote,
+    no NUL, no exotic line break — read with Arrow string kernels; (None, None, None)
+    otherwise. For such a file, splitting each line at every comma is exactly what the csv
+    module does, so the result equals :func:`csvutil.read_rows`: blank lines (every field
+    empty or spaces) and lines whose first field starts with '#' are skipped, the first
+    remaining line is the header."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    text = path.read_bytes().decode("utf-8-sig", errors="replace")
+    if not text.isascii() or _NOT_PLAIN.search(text):
+        return None, None, None
+    lines = pa.array(text.splitlines(), pa.string())
+    if not len(lines):
+        return None, None, None
+    blank = pc.equal(pc.ascii_trim_whitespace(pc.replace_substring(lines, ",", "")), "")
+    first = pc.list_element(pc.split_pattern(lines, ",", max_splits=1), 0)
+    comment = pc.starts_with(pc.ascii_ltrim_whitespace(first), "#")
+    keep = np.flatnonzero(~(blank.to_numpy(zero_copy_only=False) | comment.to_numpy(zero_copy_only=False)))
+    if not len(keep):
+        return None, None, None
+    header = [f.strip() for f in lines[int(keep[0])].as_py().split(",")]
+    data = keep[1:]
+    return header, lines.take(pa.array(data, pa.int64())), data + 1
+
+
+def _plain_cells(lines, line_no: np.ndarray, names: list[str]):
+    """Cells frame, early rejects and row count of a plain file (see :func:`_read_plain`);
+    the same frame ``load`` builds from ``read_rows``."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    width = len(names)
+    n_fields = pc.add(pc.count_substring(lines, ","), 1).to_numpy(zero_copy_only=False)
+    over = n_fields > width
+    early = [(int(ln), raw, f"{k} fields but the header has {width} — fix: quote keys with commas, "
+                            "e.g. \"C(cr,graphite)\"")
+             for ln, raw, k in zip(line_no[over], lines.filter(pa.array(over)).to_pylist(), n_fields[over])]
+    ok = ~over
+    good = lines.filter(pa.array(ok))
+    short = width - n_fields[ok]
+    if (short > 0).any():       # pad missing trailing fields with empty ones
+        pad = pa.array(["," * int(k) for k in short], pa.string())
+        good = pc.binary_join_element_wise(good, pad, "")
+    lst = pc.split_pattern(good, ",")
+    columns = {"_line": line_no[ok].astype(np.int64), "_raw": pd.array(lines.filter(pa.array(ok)), dtype="str")}
+    for j, name in enumerate(names):
+        columns[name] = pd.array(pc.ascii_trim_whitespace(pc.list_element(lst, j)), dtype="str")
+    return pd.DataFrame(columns), early, len(line_no)
 
 
 def species_keys(cf: CsvFrame, column: str = "species") -> pd.DataFrame:

@@ -28,9 +28,10 @@ def read_rows(path: Path) -> tuple[list[str], list[tuple[int, list[str], str]]]:
             rows.append((line, ["\x00csv-error", str(exc)], raw_lines[line - 1] if 0 < line <= len(raw_lines) else ""))
             continue
         line = reader.line_num
-        raw = raw_lines[line - 1] if 0 < line <= len(raw_lines) else ",".join(fields)
-        if not fields or all(not f.strip() for f in fields) or fields[0].lstrip().startswith("#"):
+        # blank (every field empty or spaces) or a comment: skipped
+        if not fields or not "".join(fields).strip() or fields[0].lstrip().startswith("#"):
             continue
+        raw = raw_lines[line - 1] if 0 < line <= len(raw_lines) else ",".join(fields)
         if header is None:
             header = [f.strip() for f in fields]
             continue

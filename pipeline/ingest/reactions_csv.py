@@ -26,7 +26,7 @@ import numpy as np
 import pandas as pd
 
 from ..equation import EquationError, parse_equation
-from ..formula import ELECTRON, FormulaError, parse_formula, parse_key
+from ..formula import CACHE_SIZE, ELECTRON, FormulaError, parse_formula, parse_key
 from ..errors import InputError, UnitError
 from ..manifest import Source
 from ..units import column_factor, energy_unit_for, factor_to_si, is_dimensionless
@@ -59,18 +59,15 @@ _FAST_TERM = r"^(?:(?P<c>\d+(?:\.\d+)?) )?(?P<k>[^\s+\d.][^\s+]*)$"
 _BALANCE_TOL = 1e-9     # the tolerance of pipeline.equation.parse_equation
 
 
-def _species(text: str, cache: dict):
+@lru_cache(maxsize=CACHE_SIZE)
+def _species(text: str):
     """(key, {element: count}, charge) of a species key as written; None if it does not parse."""
-    got = cache.get(text)
-    if got is None:
-        try:
-            sk = parse_key(text)
-            f = parse_formula(sk.formula)
-            got = (sk.key, {el: n for el, n in f.elements.items() if el != ELECTRON}, f.charge)
-        except FormulaError:
-            got = False
-        cache[text] = got
-    return got or None
+    try:
+        sk = parse_key(text)
+        f = parse_formula(sk.formula)
+    except FormulaError:
+        return None
+    return sk.key, {el: n for el, n in f.elements.items() if el != ELECTRON}, f.charge
 
 
 def parse_equations(equations) -> list[tuple[str | None, str | None]]:
@@ -114,45 +111,58 @@ def parse_equations(equations) -> list[tuple[str | None, str | None]]:
         keys = pc.dictionary_encode(pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "k"), ""))
         code = keys.indices.to_numpy(zero_copy_only=False)
         uniq = keys.dictionary.to_pylist()
-        cache: dict = {}
-        info = [_species(k, cache) if k else None for k in uniq]
+        info = [_species(k) if k else None for k in uniq]
         parsed = np.array([i is not None for i in info], bool)
         norm = np.array([i[0] if i else "" for i in info], dtype=object)
-        # a normalised key twice in one equation (also via two spellings) → general path
-        norm_code = pd.factorize(norm)[0]
-        elements = sorted({el for i in info if i for el in i[1]})
-        col = {el: j for j, el in enumerate(elements)}
-        comp = np.zeros((len(uniq), len(elements) + 1))       # element counts, then the charge
+        # rank of each distinct normalised key in sorted order (json.dumps(sort_keys=True) order)
+        norm_uniq, norm_code = np.unique(norm.astype(str), return_inverse=True)
+        norm_code = norm_code.ravel()
+        el_index: dict[str, int] = {}
+        r_idx, c_idx, vals = [], [], []
         for r, i in enumerate(info):
             if i:
                 for el, v in i[1].items():
-                    comp[r, col[el]] = v
-                comp[r, -1] = i[2]
+                    r_idx.append(r)
+                    c_idx.append(el_index.setdefault(el, len(el_index)))
+                    vals.append(v)
+                if i[2]:
+                    r_idx.append(r)
+                    c_idx.append(-1)
+                    vals.append(i[2])
+        comp = np.zeros((len(uniq), len(el_index) + 1))     # element counts, then the charge
+        comp[np.asarray(r_idx, int), np.asarray(c_idx, int)] = vals
         bad_row = ~ok_term | ~(coef > 0) | ~parsed[code]
-        pair = pd.DataFrame({"e": eq_of, "k": norm_code[code]})
+        key_of_row = norm_code[code]
+        pair = pd.DataFrame({"e": eq_of, "k": key_of_row})
         bad_row |= pair.duplicated().to_numpy()
         bad = np.zeros(n, bool)
         bad[eq_of[bad_row]] = True
         # element and charge totals per equation and side (the quantities parse_equation sums)
-        tot = np.zeros((2, n, comp.shape[1]))
-        np.add.at(tot, (side, eq_of), coef[:, None] * comp[code])
-        a, b = tot[0], tot[1]
+        contrib = coef[:, None] * comp[code]
+        a = np.stack([np.bincount(eq_of[side == 0], contrib[side == 0, j], minlength=n)
+                      for j in range(comp.shape[1])], axis=1)
+        b = np.stack([np.bincount(eq_of[side == 1], contrib[side == 1, j], minlength=n)
+                      for j in range(comp.shape[1])], axis=1)
         scale = np.maximum(1.0, np.maximum(np.abs(a), np.abs(b)))
         scale[:, -1] = np.maximum(1.0, np.abs(a[:, -1]))
         bad |= (np.abs(a - b) > 0.5 * _BALANCE_TOL * scale).any(axis=1)
-        good = ~bad[eq_of]
-        if good.any():
-            g_eq, g_norm = eq_of[good], norm[code[good]]
+        good = np.flatnonzero(~bad[eq_of])
+        if len(good):
+            # JSON text {"key": ν, ...}, keys sorted, built with Arrow string kernels
             nu = np.where(side[good] == 1, coef[good], -coef[good])
-            jkey = {k: json.dumps(k) for k in pd.unique(g_norm)}
-            jval = {v: json.dumps(v) for v in np.unique(nu).tolist()}
-            order = np.lexsort((g_norm.astype(str), g_eq))
-            items = [jkey[k] + ": " + jval[v] for k, v in zip(g_norm[order].tolist(), nu[order].tolist())]
-            eq_sorted = g_eq[order]
+            vals_u, val_code = np.unique(nu, return_inverse=True)
+            order = np.lexsort((key_of_row[good], eq_of[good]))
+            jkey = pa.array([json.dumps(k) for k in norm_uniq.tolist()], pa.string())
+            jval = pa.array([json.dumps(v) for v in vals_u.tolist()], pa.string())
+            items = pc.binary_join_element_wise(jkey.take(pa.array(key_of_row[good][order])),
+                                                jval.take(pa.array(val_code.ravel()[order])), ": ")
+            eq_sorted = eq_of[good][order]
             starts = np.flatnonzero(np.r_[True, eq_sorted[1:] != eq_sorted[:-1]])
-            stops = np.r_[starts[1:], len(items)]
-            for e, a0, a1 in zip(eq_sorted[starts].tolist(), starts.tolist(), stops.tolist()):
-                result[e] = ("{" + ", ".join(items[a0:a1]) + "}", None)
+            offsets = pa.array(np.r_[starts, len(eq_sorted)].astype(np.int32))
+            bodies = pc.binary_join(pa.ListArray.from_arrays(offsets, items), ", ")
+            texts = pc.binary_join_element_wise("{", bodies, "}", "")
+            for e, t in zip(eq_sorted[starts].tolist(), texts.to_pylist()):
+                result[e] = (t, None)
                 fast[e] = True
     for i in np.flatnonzero(~fast):
         result[i] = _parse(eqs[i])

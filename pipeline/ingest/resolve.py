@@ -78,35 +78,48 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     """
     amap = alias_map(species_meta)
     keys, warn_rows, bad, reasons = [], [], [], []
-    for row in records.itertuples(index=False):
-        elements = json.loads(row.elements_json) if isinstance(row.elements_json, str) else {}
+    cols = {c: records[c].to_numpy(object) for c in
+            ("record_id", "source_id", "name", "species_hint", "state", "label", "elements_json", "charge")}
+    parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
+    checked: dict = {}          # (key, elements_json) → reason or None
+    for rid, src, name, hint, state, label, ej, charge in zip(*cols.values()):
+        if isinstance(ej, str):
+            elements = parsed_json.get(ej)
+            if elements is None:
+                elements = parsed_json[ej] = json.loads(ej)
+        else:
+            elements = {}
         key = None
-        for cand in (row.name, row.species_hint):
+        for cand in (name, hint):
             if isinstance(cand, str) and cand.lower() in amap:
                 key = amap[cand.lower()]
                 break
-        if key is None and isinstance(row.species_hint, str) and row.species_hint:
-            key = row.species_hint
+        if key is None and isinstance(hint, str) and hint:
+            key = hint
         if key is None:
-            charge = 0 if pd.isna(row.charge) else int(row.charge)
-            key, ok = build_key(row.name, row.state, row.label if isinstance(row.label, str) else None,
-                                elements, charge)
+            z = 0 if pd.isna(charge) else int(charge)
+            key, ok = build_key(name, state, label if isinstance(label, str) else None, elements, z)
             if key.lower() in amap:          # the built key may itself be a declared alias
                 key, ok = amap[key.lower()], True
             if not ok:
-                warn_rows.append((row.record_id, key, row.source_id, row.name))
-        reason = None
-        try:
-            sk = parse_key(key)
-            f = parse_formula(sk.formula)
-            if elements:
-                mine = {k: float(v) for k, v in f.elements.items() if k != "e"}
-                theirs = {k: float(v) for k, v in elements.items() if v}
-                if mine != theirs and all(k[0].isupper() for k in theirs):
-                    reason = (f"record elements {theirs} contradict species {key!r} "
-                              f"({mine}) — fix: correct the alias or the formula field")
-        except FormulaError as exc:
-            reason = f"species key: {exc}"
+                warn_rows.append((rid, key, src, name))
+        memo = (key, ej if isinstance(ej, str) else None)
+        if memo in checked:
+            reason = checked[memo]
+        else:
+            reason = None
+            try:
+                sk = parse_key(key)
+                f = parse_formula(sk.formula)
+                if elements:
+                    mine = {k: float(v) for k, v in f.elements.items() if k != "e"}
+                    theirs = {k: float(v) for k, v in elements.items() if v}
+                    if mine != theirs and all(k[0].isupper() for k in theirs):
+                        reason = (f"record elements {theirs} contradict species {key!r} "
+                                  f"({mine}) — fix: correct the alias or the formula field")
+            except FormulaError as exc:
+                reason = f"species key: {exc}"
+            checked[memo] = reason
         keys.append(key)
         bad.append(reason is not None)
         reasons.append(reason)
@@ -126,25 +139,29 @@ def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
     """One row per species key with formula, state, label, charge, elements and molar mass."""
     meta = species_meta.drop_duplicates("species").set_index("species")
     rows = []
+    meta_rows = {k: i for i, k in enumerate(meta.index)}
+    m_cols = {c: meta[c].to_numpy(object) for c in
+              ("stated_molar_mass_g_mol", "reference_element", "geometry", "cas", "aliases", "source_id")}
     for key in sorted(set(keys) | set(meta.index)):
         sk = parse_key(key)
         f = parse_formula(sk.formula)
-        m = meta.loc[key] if key in meta.index else None
-        rows.append(dict(
-            species=key, formula=sk.formula, state=sk.state, label=sk.label, charge=f.charge,
-            elements_json=json.dumps({k: v for k, v in f.elements.items() if k != "e"}, sort_keys=True),
-            composition=composition_key(f.elements, f.charge), n_atoms=f.n_atoms,
-            molar_mass_g_mol=f.molar_mass_g_mol,
-            stated_molar_mass_g_mol=(float(m["stated_molar_mass_g_mol"])
-                                     if m is not None and pd.notna(m["stated_molar_mass_g_mol"]) else np.nan),
-            reference_element=bool(m["reference_element"]) if m is not None else False,
-            geometry=(m["geometry"] if m is not None and isinstance(m["geometry"], str) else
-                      ("atom" if f.n_atoms == 1 else None)),
-            cas=(m["cas"] if m is not None else None),
-            aliases=(m["aliases"] if m is not None else ""),
-            meta_source_id=(m["source_id"] if m is not None else None),
-        ))
+        i = meta_rows.get(key)
+        if i is None:
+            mm, ref, geo, cas, aliases, msrc = np.nan, False, None, None, "", None
+        else:
+            mm = float(m_cols["stated_molar_mass_g_mol"][i]) if pd.notna(m_cols["stated_molar_mass_g_mol"][i]) \
+                else np.nan
+            ref = bool(m_cols["reference_element"][i])
+            g = m_cols["geometry"][i]
+            geo = g if isinstance(g, str) else None
+            cas, aliases, msrc = m_cols["cas"][i], m_cols["aliases"][i], m_cols["source_id"][i]
+        n_atoms = f.n_atoms
+        rows.append((key, sk.formula, sk.state, sk.label, f.charge,
+                     json.dumps({k: v for k, v in f.elements.items() if k != "e"}, sort_keys=True),
+                     composition_key(f.elements, f.charge), n_atoms, f.molar_mass_g_mol, mm, ref,
+                     geo if geo is not None else ("atom" if n_atoms == 1 else None),
+                     cas, aliases, msrc))
     cols = ["species", "formula", "state", "label", "charge", "elements_json", "composition",
             "n_atoms", "molar_mass_g_mol", "stated_molar_mass_g_mol", "reference_element",
             "geometry", "cas", "aliases", "meta_source_id"]
-    return pd.DataFrame(rows, columns=cols)
+    return pd.DataFrame.from_records(rows, columns=cols) if rows else pd.DataFrame(columns=cols)
