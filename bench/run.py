@@ -315,6 +315,7 @@ def main(argv=None) -> int:
                     help="folder for generated databases and outputs")
     ap.add_argument("--write-readme", action="store_true", help="put the results table into README.md")
     ap.add_argument("--keep", action="store_true", help="keep the run outputs in the work folder")
+    ap.add_argument("--fresh", action="store_true", help="drop earlier results instead of merging them")
     a = ap.parse_args(argv)
     runs = getattr(a, "runs", None) or [(10_000, False)]
     a.work.mkdir(parents=True, exist_ok=True)
@@ -337,9 +338,17 @@ def main(argv=None) -> int:
         if not a.keep:
             for p in a.work.glob(f"out-n{n}*"):
                 shutil.rmtree(p, ignore_errors=True)
-    tgt = targets(entries)
     meta = dict(date=time.strftime("%Y-%m-%d"), machine=platform.machine() + " " + platform.system(),
                 cpus=os.cpu_count(), python=platform.python_version())
+    for e in entries:
+        e["date"] = meta["date"]
+    # keep the earlier results of other sizes/modes (e.g. a separate --checks-only run)
+    old_file = RESULTS / "results.json"
+    if old_file.is_file() and not a.fresh:
+        done = {(e["n"], e["mode"]) for e in entries}
+        old = [e for e in json.loads(old_file.read_text()).get("entries", []) if (e["n"], e["mode"]) not in done]
+        entries = sorted(old + entries, key=lambda e: (e["mode"] != "full", e["n"]))
+    tgt = targets(entries)
     RESULTS.mkdir(exist_ok=True)
     (RESULTS / "results.json").write_text(json.dumps(dict(meta=meta, entries=entries, targets=tgt), indent=1,
                                                      default=str))

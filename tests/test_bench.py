@@ -163,3 +163,29 @@ def test_planted_list_is_written(database):
     d, summary = database
     doc = json.loads((d / "planted.json").read_text())
     assert doc["n_species"] == N and len(doc["planted"]) == len(summary["planted"]) >= 30
+
+
+def test_fast_paths_read_exactly_what_the_general_ones_read(database, monkeypatch):
+    """The vectorised readings the benchmark relies on (plain CSV with Arrow, equations in
+    bulk) give exactly the frames of the csv module and of ``parse_equation`` one by one."""
+    import pandas as pd
+
+    import pipeline.ingest.csvframe as cfm
+    from pipeline.ingest import reactions_csv, table_csv
+
+    d, _ = database
+    allowed = table_csv.COLUMNS + reactions_csv.COLUMNS
+    files = sorted((d / "raw").rglob("*.csv"))
+    assert len(files) >= 6
+    fast = {p: cfm.load(p, p.name, fmt="t", allowed=allowed, required=(), example_header="")
+            for p in files if p.name != "species.csv"}
+    assert any(cfm._read_plain(p) is not None for p in fast)          # the fast path is taken
+    monkeypatch.setattr(cfm, "_read_plain", lambda path: None)
+    for p, a in fast.items():
+        b = cfm.load(p, p.name, fmt="t", allowed=allowed, required=(), example_header="")
+        pd.testing.assert_frame_equal(a.cells, b.cells, obj=p.name)
+        assert (a.early_rejects, a.n_rows, a.headers, a.units) == (b.early_rejects, b.n_rows, b.headers, b.units)
+    eqs = [e for p in fast if "reactions" in str(p) for e in pd.read_csv(p)["equation"]]
+    eqs += ["1/2 O2(g) + H2(g) = H2O(g)", "Na+(g) + e-(g) = Na(g)", "H2(g) + H2(g) = H4(g)",
+            "CO(g) + 0.5 O2(g) = CO2(g) + 1e-12 H2(g)", "A(g) = B(g) = C(g)", "", "2H2(g) + O2(g) = 2 H2O(g)"]
+    assert reactions_csv.parse_equations(eqs) == [reactions_csv._parse.__wrapped__(e) for e in eqs]

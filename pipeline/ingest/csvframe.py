@@ -8,7 +8,6 @@ the reason; a row is rejected once, with its first problem.
 """
 from __future__ import annotations
 
-import re
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -101,8 +100,9 @@ def load(path: Path, rel: str, *, fmt: str, allowed: tuple[str, ...], required: 
         No header, a duplicate, unknown or missing required column (line 1, with the fix).
     """
     plain = _read_plain(path)
-    header, rows = plain[0], None
-    if plain[0] is None:
+    if plain is not None:
+        header, rows = plain[0], None
+    else:
         header, rows = read_rows(path)
     if not header:
         raise InputError(rel, 1, "no header line", f"a {fmt} header", f"start the file with {example_header}")
@@ -124,7 +124,7 @@ def load(path: Path, rel: str, *, fmt: str, allowed: tuple[str, ...], required: 
                          f"add them, e.g. {example_header}")
     width = len(names)
     if rows is None:
-        cells, early, n_rows = _plain_cells(plain[1], plain[2], names)
+        cells, early, n_rows = _plain_cells(plain, names)
         return CsvFrame(rel=rel, headers=[h.strip() for h in header], names=names,
                         units={n: u for n, (_, u) in zip(names, split)}, cells=cells,
                         early_rejects=early, n_rows=n_rows)
@@ -155,60 +155,102 @@ def load(path: Path, rel: str, *, fmt: str, allowed: tuple[str, ...], required: 
                     early_rejects=early, n_rows=len(rows))
 
 
-#: Characters that make a file take the general (csv module) path: quotes and NUL change
-#: how fields split; the others are line breaks for str.splitlines but not for csv.
-_NOT_PLAIN = re.compile('["\x00\x0b\x0c\x1c-\x1f\x7f]|\r(?!\n)')
+#: Characters that make a file take the general (csv module) path: NUL changes how
+#: fields split; the others are line breaks for str.splitlines but not for csv (as is a
+#: carriage return not followed by a line feed).
+_NOT_PLAIN = ("\x00", "\x0b", "\x0c", "\x1c", "\x1d", "\x1e", "\x1f", "\x7f")
 
 
 def _read_plain(path: Path):
-    """(header, data lines, their line numbers) of a *plain* CSV file — ASCII, no quote,
-    no NUL, no exotic line break — read with Arrow string kernels; (None, None, None)
-    otherwise. For such a file, splitting each line at every comma is exactly what the csv
-    module does, so the result equals :func:`csvutil.read_rows`: blank lines (every field
-    empty or spaces) and lines whose first field starts with '#' are skipped, the first
-    remaining line is the header."""
+    """A fast, exact reading of *plain* CSV files with Arrow string kernels, or None.
+
+    Plain: ASCII, no NUL or exotic line break, the header line without quotes, and quotes
+    (if any) only around whole fields that hold no quote themselves (``"C(cr,graphite)"``).
+    For such a file the csv module splits every line at its commas outside the quotes and
+    removes the quotes; this reproduces that (``split_pattern`` without quotes, a regular
+    expression of exactly one field per header column with them) and the rules of
+    :func:`csvutil.read_rows`: blank lines (every field empty or spaces) and lines whose first
+    field starts with '#' are skipped, the first remaining line is the header. A file with
+    any other line (a quote inside a field, more or fewer fields than the header in a
+    quoted file) returns None and is read by the csv module.
+
+    Returns ``(header, columns, line_numbers, raw_lines, n_fields)``: ``columns`` the
+    stripped cells per header column (Arrow), ``n_fields`` of each data line.
+    """
     import pyarrow as pa
     import pyarrow.compute as pc
 
     text = path.read_bytes().decode("utf-8-sig", errors="replace")
-    if not text.isascii() or _NOT_PLAIN.search(text):
-        return None, None, None
-    lines = pa.array(text.splitlines(), pa.string())
-    if not len(lines):
-        return None, None, None
-    blank = pc.equal(pc.ascii_trim_whitespace(pc.replace_substring(lines, ",", "")), "")
+    if (not text.isascii() or any(ch in text for ch in _NOT_PLAIN)
+            or text.count("\r") != text.count("\r\n")):
+        return None
+    all_lines = text.splitlines()
+    if not all_lines:
+        return None
+    lines = pa.array(all_lines, pa.string())
+    quoted = '"' in text
+    raw_blank = pc.equal(pc.ascii_trim_whitespace(pc.replace_substring(lines, ",", "")), "")
+    raw_blank = raw_blank.to_numpy(zero_copy_only=False)
+    # the header: the first line that is neither blank nor a comment (it must hold no quote)
     first = pc.list_element(pc.split_pattern(lines, ",", max_splits=1), 0)
-    comment = pc.starts_with(pc.ascii_ltrim_whitespace(first), "#")
-    keep = np.flatnonzero(~(blank.to_numpy(zero_copy_only=False) | comment.to_numpy(zero_copy_only=False)))
-    if not len(keep):
-        return None, None, None
-    header = [f.strip() for f in lines[int(keep[0])].as_py().split(",")]
-    data = keep[1:]
-    return header, lines.take(pa.array(data, pa.int64())), data + 1
+    raw_comment = pc.starts_with(pc.ascii_ltrim_whitespace(first), "#").to_numpy(zero_copy_only=False)
+    kept = np.flatnonzero(~(raw_blank | raw_comment))
+    if not len(kept):
+        return None
+    h = int(kept[0])
+    if any('"' in all_lines[i] for i in range(h + 1)):
+        return None
+    header = [f.strip() for f in all_lines[h].split(",")]
+    width = len(header)
+    idx = np.arange(h + 1, len(all_lines))
+    if quoted:
+        idx = idx[~raw_blank[idx]]
+        data = lines.take(pa.array(idx, pa.int64()))
+        field = '(?:"(?P<q{0}>[^"]*)"|(?P<u{0}>[^,"]*))'
+        ext = pc.extract_regex(data, "^" + ",".join(field.format(j) for j in range(width)) + "$")
+        if ext.null_count:
+            return None
+        cols = [pc.ascii_trim_whitespace(pc.binary_join_element_wise(
+            pc.struct_field(ext, f"q{j}"), pc.struct_field(ext, f"u{j}"), "")) for j in range(width)]
+        # blank (every field empty) or comment (first field starts with '#'), as csv sees them
+        empty = np.ones(len(idx), bool)
+        for c in cols:
+            empty &= pc.equal(c, "").to_numpy(zero_copy_only=False)
+        first_val = pc.ascii_ltrim_whitespace(pc.binary_join_element_wise(
+            pc.struct_field(ext, "q0"), pc.struct_field(ext, "u0"), ""))
+        comment = pc.starts_with(first_val, "#").to_numpy(zero_copy_only=False)
+        keep = ~(empty | comment)
+        mask = pa.array(keep)
+        cols = [c.filter(mask) for c in cols]
+        idx = idx[keep]
+        return header, cols, idx + 1, data.filter(mask), np.full(len(idx), width)
+    idx = idx[~(raw_blank[idx] | raw_comment[idx])]
+    data = lines.take(pa.array(idx, pa.int64()))
+    n_fields = pc.add(pc.count_substring(data, ","), 1).to_numpy(zero_copy_only=False)
+    short = np.maximum(width - n_fields, 0)
+    padded = data
+    if (short > 0).any():       # missing trailing fields are empty ones
+        padded = pc.binary_join_element_wise(data, pa.array(["," * int(k) for k in short], pa.string()), "")
+    lst = pc.split_pattern(padded, ",")
+    cols = [pc.ascii_trim_whitespace(pc.list_element(lst, j)) for j in range(width)]
+    return header, cols, idx + 1, data, n_fields
 
 
-def _plain_cells(lines, line_no: np.ndarray, names: list[str]):
+def _plain_cells(plain, names: list[str]):
     """Cells frame, early rejects and row count of a plain file (see :func:`_read_plain`);
     the same frame ``load`` builds from ``read_rows``."""
     import pyarrow as pa
-    import pyarrow.compute as pc
 
+    _, cols, line_no, raw, n_fields = plain
     width = len(names)
-    n_fields = pc.add(pc.count_substring(lines, ","), 1).to_numpy(zero_copy_only=False)
     over = n_fields > width
-    early = [(int(ln), raw, f"{k} fields but the header has {width} — fix: quote keys with commas, "
-                            "e.g. \"C(cr,graphite)\"")
-             for ln, raw, k in zip(line_no[over], lines.filter(pa.array(over)).to_pylist(), n_fields[over])]
-    ok = ~over
-    good = lines.filter(pa.array(ok))
-    short = width - n_fields[ok]
-    if (short > 0).any():       # pad missing trailing fields with empty ones
-        pad = pa.array(["," * int(k) for k in short], pa.string())
-        good = pc.binary_join_element_wise(good, pad, "")
-    lst = pc.split_pattern(good, ",")
-    columns = {"_line": line_no[ok].astype(np.int64), "_raw": pd.array(lines.filter(pa.array(ok)), dtype="str")}
-    for j, name in enumerate(names):
-        columns[name] = pd.array(pc.ascii_trim_whitespace(pc.list_element(lst, j)), dtype="str")
+    early = [(int(ln), r, f"{k} fields but the header has {width} — fix: quote keys with commas, "
+                          "e.g. \"C(cr,graphite)\"")
+             for ln, r, k in zip(line_no[over], raw.filter(pa.array(over)).to_pylist(), n_fields[over])]
+    ok = pa.array(~over)
+    columns = {"_line": line_no[~over].astype(np.int64), "_raw": pd.array(raw.filter(ok), dtype="str")}
+    for name, col in zip(names, cols):
+        columns[name] = pd.array(col.filter(ok), dtype="str")
     return pd.DataFrame(columns), early, len(line_no)
 
 

@@ -17,7 +17,15 @@ def number(line: str, start: int, stop: int, what: str, *, blank=None) -> float:
     Raises RecordError naming the columns and the text when it is not a finite number.
     A blank field returns ``blank`` if given, else raises.
     """
-    text = field(line, start, stop).strip()
+    raw = line[start - 1:stop] if len(line) >= start else ""
+    try:                       # the common case: a plain real (float() ignores the padding)
+        value = float(raw)
+    except ValueError:
+        pass
+    else:
+        if math.isfinite(value):
+            return value
+    text = raw.strip()
     if not text:
         if blank is not None:
             return blank
