@@ -79,8 +79,9 @@ class SpeciesKey:
         return f"{self.formula}({inner})"
 
 
-#: Distinct formulas and keys remembered (a database of 10⁵ species parses each key once).
-CACHE_SIZE = 1 << 18
+#: Distinct formulas and keys remembered: a key is parsed by several readers and stages, so
+#: the caches hold every key of a database of up to 2·10⁶ species (about 0.5 kB each).
+CACHE_SIZE = 1 << 21
 
 
 @lru_cache(maxsize=CACHE_SIZE)

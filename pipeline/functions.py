@@ -36,7 +36,7 @@ import pandas as pd
 from scipy.linalg import solve_banded
 
 from .constants import T_REF
-from .thermo import SegmentIndex, evaluate
+from .thermo import SegmentIndex, evaluate, sorted_codes
 
 #: A tabulated temperature within this of 298.15 K is the 298.15 K row [K].
 T_REF_MATCH_K = 5e-3
@@ -229,18 +229,26 @@ class TableCurves:
     slope: np.ndarray
     int_cp: np.ndarray
     int_cp_t: np.ndarray
+    #: position in ``points`` (as given to :meth:`from_points`) of each node
+    source_pos: np.ndarray | None = None
 
     @classmethod
     def from_points(cls, points: pd.DataFrame, method: str = "spline") -> "TableCurves":
         """``points``: frame with ``record_id, t_k, cp_j_mol_k`` (rows without Cp ignored;
         a repeated T keeps its first row)."""
-        pts = points.loc[points["cp_j_mol_k"].notna() & points["t_k"].notna(),
-                         ["record_id", "t_k", "cp_j_mol_k"]]
-        pts = pts.sort_values(["record_id", "t_k"], kind="stable").drop_duplicates(["record_id", "t_k"])
-        ids, rank = np.unique(pts["record_id"].to_numpy(dtype=str), return_inverse=True)
+        t_all = points["t_k"].to_numpy(float)
+        cp_all = points["cp_j_mol_k"].to_numpy(float)
+        pos = np.flatnonzero(~np.isnan(cp_all) & ~np.isnan(t_all))
+        # sort by (record, T), stably, on integer codes of the ids (hashing, not text sorting)
+        ids, code = sorted_codes(points["record_id"].iloc[pos])
+        order = np.lexsort((t_all[pos], code))
+        pos, code = pos[order], code[order]
+        first = np.ones(len(pos), bool)          # a repeated (record, T) keeps its first row
+        first[1:] = (code[1:] != code[:-1]) | (t_all[pos[1:]] != t_all[pos[:-1]])
+        pos, rank = pos[first], code[first]
         start, stop = _group_bounds(rank, len(ids))
-        t = pts["t_k"].to_numpy(float)
-        cp = pts["cp_j_mol_k"].to_numpy(float)
+        t = t_all[pos]
+        cp = cp_all[pos]
         if method == "spline":
             slope = not_a_knot_slopes(t, cp, start, stop)
         elif method == "pchip":
@@ -266,7 +274,7 @@ class TableCurves:
         # a NaN piece (∫Cp/T from T = 0 with Cp(0) ≠ 0) poisons every later node of its record
         poisoned = shifted[["a", "b"]].isna().astype(int).groupby(shifted["g"]).cumsum() > 0
         cum = cum.mask(poisoned)
-        return cls(ids, start, stop, t, cp, slope, cum["a"].to_numpy(float), cum["b"].to_numpy(float))
+        return cls(ids, start, stop, t, cp, slope, cum["a"].to_numpy(float), cum["b"].to_numpy(float), pos)
 
     def rank_of(self, record_ids) -> np.ndarray:
         """Index of each record id in ``record_ids`` (−1 for an id without table points)."""
@@ -330,10 +338,10 @@ class _Anchored:
     """Table curves plus the tabulated H − H298 and S they are anchored to (see module doc)."""
 
     def __init__(self, table_points: pd.DataFrame):
+        self.points = table_points
         self.curves = TableCurves.from_points(table_points)
         cv = self.curves
-        pts = table_points.loc[table_points["cp_j_mol_k"].notna() & table_points["t_k"].notna()]
-        pts = pts.sort_values(["record_id", "t_k"], kind="stable").drop_duplicates(["record_id", "t_k"])
+        pts = table_points.iloc[cv.source_pos]       # the nodes' rows, in node order
         n = len(cv.t)
         rank = np.repeat(np.arange(len(cv.record_ids)), cv.stop - cv.start)
         hmh = pts["h_minus_href_j_mol"].to_numpy(float)

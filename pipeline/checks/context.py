@@ -14,7 +14,7 @@ import pandas as pd
 
 from ..config import Config
 from ..constants import P_STD_BAR, R
-from ..thermo import COEF_COLUMNS, SegmentIndex, evaluate, heat_capacity
+from ..thermo import COEF_COLUMNS, SegmentIndex, evaluate, heat_capacity, sorted_codes
 
 
 @dataclass
@@ -99,6 +99,10 @@ class CheckContext:
         return seg.sort_values(["record_id", "t_low_k"], kind="stable").reset_index(drop=True)
 
 
+#: Segments per block in :func:`cp_extrema`.
+_EXTREMA_BLOCK = 50_000
+
+
 def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int = 33):
     """Exact minimum and maximum of Cp over each segment's range, vectorised.
 
@@ -124,6 +128,10 @@ def cp_extrema(coef: np.ndarray, t_lo: np.ndarray, t_hi: np.ndarray, n_grid: int
     if n == 0:
         e = np.empty(0)
         return e, e, e, e
+    if n > _EXTREMA_BLOCK:      # blocks: the (n, ~40) candidate arrays stay small in memory
+        parts = [cp_extrema(coef[i:i + _EXTREMA_BLOCK], t_lo[i:i + _EXTREMA_BLOCK],
+                            t_hi[i:i + _EXTREMA_BLOCK], n_grid) for i in range(0, n, _EXTREMA_BLOCK)]
+        return tuple(np.concatenate([p[k] for p in parts]) for k in range(4))
     a1, a2, a4, a5, a6, a7 = (coef[:, i] for i in (0, 1, 3, 4, 5, 6))
     # derivative polynomial, highest degree first: [4a7, 3a6, 2a5, a4, 0, -a2, -2a1]
     poly = np.stack([4 * a7, 3 * a6, 2 * a5, a4, np.zeros(n), -a2, -2 * a1], axis=1)

@@ -34,17 +34,16 @@ def table_nodes(ctx: CheckContext) -> pd.DataFrame:
 
 def _table_nodes(ctx: CheckContext) -> pd.DataFrame:
     tables = ctx.records.loc[ctx.records["kind"] == "table", ["record_id", "species"]]
-    tp = ctx.table_points
-    tp = tp[member(tp["record_id"], tables["record_id"]) & tp["cp_j_mol_k"].notna() & tp["t_k"].notna()]
-    tp = tp.sort_values(["record_id", "t_k"], kind="stable").drop_duplicates(["record_id", "t_k"])
-    nodes = tp.merge(tables, on="record_id", how="left", validate="many_to_one")
+    tables = tables.drop_duplicates("record_id")
+    # the species functions already hold these nodes (table rows with Cp, sorted by record
+    # and T, one per T) and their spline: reuse both
+    anchored = ctx.functions.tables
+    spline = anchored.curves
+    nodes = anchored.points.iloc[spline.source_pos]
+    sp_of = pd.Series(tables["species"].to_numpy(object), index=tables["record_id"].to_numpy(object))
+    nodes = nodes.assign(species=sp_of.reindex(nodes["record_id"].to_numpy(object)).to_numpy(object))
     if not len(nodes):
-        return nodes
-    # the species functions already hold the spline of exactly these nodes: reuse it
-    spline = ctx.functions.tables.curves
-    if not (np.array_equal(spline.t, nodes["t_k"].to_numpy(float))
-            and np.array_equal(spline.record_ids, nodes["record_id"].drop_duplicates().to_numpy(str))):
-        spline = TableCurves.from_points(nodes, "spline")
+        return nodes.reset_index(drop=True)
     pchip = TableCurves.from_points(nodes, "pchip")
     if not np.array_equal(spline.t, nodes["t_k"].to_numpy(float)):   # same sort, same rows
         raise RuntimeError("table nodes and spline nodes are out of step (internal error)")

@@ -70,6 +70,13 @@ def _species(text: str):
     return sk.key, {el: n for el, n in f.elements.items() if el != ELECTRON}, f.charge
 
 
+def _json_str(text: str) -> str:
+    """``json.dumps(text)``, without the encoder for plain ASCII text (nothing to escape)."""
+    if text.isascii() and text.isprintable() and '"' not in text and "\\" not in text:
+        return f'"{text}"'
+    return json.dumps(text)
+
+
 def parse_equations(equations) -> list[tuple[str | None, str | None]]:
     """(stoich_json, None) or (None, reason) for every equation, vectorised.
 
@@ -152,7 +159,7 @@ def parse_equations(equations) -> list[tuple[str | None, str | None]]:
             nu = np.where(side[good] == 1, coef[good], -coef[good])
             vals_u, val_code = np.unique(nu, return_inverse=True)
             order = np.lexsort((key_of_row[good], eq_of[good]))
-            jkey = pa.array([json.dumps(k) for k in norm_uniq.tolist()], pa.string())
+            jkey = pa.array([_json_str(k) for k in norm_uniq.tolist()], pa.string())
             jval = pa.array([json.dumps(v) for v in vals_u.tolist()], pa.string())
             items = pc.binary_join_element_wise(jkey.take(pa.array(key_of_row[good][order])),
                                                 jval.take(pa.array(val_code.ravel()[order])), ": ")

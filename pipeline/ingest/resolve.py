@@ -135,6 +135,16 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     return out, findings, np.array(bad, dtype=bool), reasons
 
 
+def _elements_json(elements: dict) -> str:
+    """``json.dumps({element: count}, sort_keys=True)`` without the electron, written directly
+    (element symbols need no escaping; counts are floats, written as ``repr`` as json does)."""
+    items = sorted((k, v) for k, v in elements.items() if k != "e")
+    if all(k.isascii() and k.isalnum() and isinstance(v, float) and v == v and abs(v) != float("inf")
+           for k, v in items):
+        return "{" + ", ".join(f'"{k}": {v!r}' for k, v in items) + "}"
+    return json.dumps({k: v for k, v in items}, sort_keys=True)
+
+
 def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
     """One row per species key with formula, state, label, charge, elements and molar mass."""
     meta = species_meta.drop_duplicates("species").set_index("species")
@@ -156,8 +166,7 @@ def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
             geo = g if isinstance(g, str) else None
             cas, aliases, msrc = m_cols["cas"][i], m_cols["aliases"][i], m_cols["source_id"][i]
         n_atoms = f.n_atoms
-        rows.append((key, sk.formula, sk.state, sk.label, f.charge,
-                     json.dumps({k: v for k, v in f.elements.items() if k != "e"}, sort_keys=True),
+        rows.append((key, sk.formula, sk.state, sk.label, f.charge, _elements_json(f.elements),
                      composition_key(f.elements, f.charge), n_atoms, f.molar_mass_g_mol, mm, ref,
                      geo if geo is not None else ("atom" if n_atoms == 1 else None),
                      cas, aliases, msrc))
