@@ -127,7 +127,7 @@ def test_reactions_close_on_the_generating_enthalpies(database, tmp_path):
 @pytest.mark.parametrize("theta", gen.THETAS_LOW + gen.THETAS_HIGH)
 def test_templates_follow_the_einstein_function(theta):
     """Each template is two quartics of the Einstein heat capacity x² eˣ/(eˣ − 1)², x = Θ/T
-    (Einstein 1907), continuous in value and slope at 1000 K. Tolerance 0.1 (in Cv/R of one
+    (Einstein 1907), continuous in value, slope and curvature at 1000 K. Tolerance 0.1 (in Cv/R of one
     mode, whose range is 0…1): a quartic over a decade of T cannot follow the function's
     exponential onset more closely; the benchmark needs realistic shapes, not exact ones."""
     lo, hi = gen.fit_template(theta)
@@ -139,6 +139,9 @@ def test_templates_follow_the_einstein_function(theta):
     d1 = np.polyval(np.polyder(lo[::-1]), 1000.0)
     d2 = np.polyval(np.polyder(hi[::-1]), 1000.0)
     assert abs(d1 - d2) < 1e-9 * max(1.0, abs(d1))
+    c1 = np.polyval(np.polyder(lo[::-1], 2), 1000.0)
+    c2 = np.polyval(np.polyder(hi[::-1], 2), 1000.0)
+    assert abs(c1 - c2) < 1e-9 * max(1e-9, abs(c1))
     # high-temperature limit: every mode classical, Cv/R → 1
     assert abs(float(gen.einstein_cv_r(theta, 1e6)) - 1.0) < 1e-6
 
