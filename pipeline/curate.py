@@ -331,11 +331,15 @@ def write_release(run) -> None:
 
 
 def _sorted(df: pd.DataFrame, keys: list[str] | None = None) -> pd.DataFrame:
-    """Rows in a deterministic order: by ``keys``, then by every other column (text
-    columns compared as text, nulls first)."""
+    """Rows in a deterministic order: by ``keys`` when they are unique, else by ``keys`` then
+    every other column (text columns compared as text, nulls first)."""
     if not len(df):
         return df.reset_index(drop=True)
-    cols = list(dict.fromkeys((keys or []) + list(df.columns)))
+    if keys and not df.duplicated(keys).any():
+        # a unique key orders the rows completely: no need to compare every column
+        cols = list(keys)
+    else:
+        cols = list(dict.fromkeys((keys or []) + list(df.columns)))
     key = pd.DataFrame({c: (df[c].astype("string").fillna("")
                             if df[c].dtype == object or str(df[c].dtype) in ("string", "str") else df[c])
                         for c in cols}, index=df.index)
