@@ -20,7 +20,6 @@ import pandas as pd
 from . import __version__
 from .config import Config
 from .constants import P_STD_BAR
-from .errors import InputError
 from .findings import FINDING_COLUMNS, empty_findings, fingerprint, make_findings
 from .ingest import base as ib
 from .manifest import DATA_FORMATS, Manifest, load_manifest, unlisted_files
