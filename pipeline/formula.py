@@ -262,9 +262,9 @@ def recase_name(name: str, elements: dict, charge: int = 0) -> str | None:
     if m and m.start() > 0:
         suffix, core = name[m.start():], name[: m.start()]
 
-    def candidates(s: str):
+    def candidates(s: str, allowed):
         """Casings in depth-first order (one-letter symbol before two-letter), lazily; a
-        prefix whose symbol is no element cannot parse and is not extended."""
+        prefix whose symbol is not allowed cannot match and is not extended."""
         if not s:
             yield ""
             return
@@ -273,21 +273,26 @@ def recase_name(name: str, elements: dict, charge: int = 0) -> str | None:
             for width in (1, 2):
                 if len(s) >= width and s[:width].isalpha():
                     sym = s[0].upper() + s[1:width].lower()
-                    if not _is_element(sym):
+                    if not allowed(sym):
                         continue
-                    for rest in candidates(s[width:]):
+                    for rest in candidates(s[width:], allowed):
                         yield sym + rest
         else:
-            for rest in candidates(s[1:]):
+            for rest in candidates(s[1:], allowed):
                 yield ch + rest
+
+    def first_match(allowed):
+        for cand in candidates(core, allowed):
+            try:
+                f = parse_formula(cand + suffix)
+            except FormulaError:
+                continue
+            if {k: v for k, v in f.elements.items() if k != ELECTRON} == target:
+                return cand + suffix
+        return None
 
     if len(core) > 24:
         return None
-    for cand in candidates(core):
-        try:
-            f = parse_formula(cand + suffix)
-        except FormulaError:
-            continue
-        if {k: v for k, v in f.elements.items() if k != ELECTRON} == target:
-            return cand + suffix
-    return None
+    # A matching casing uses only the record's own elements, unless a symbol is written with
+    # a zero count: search those casings first (a handful), then every casing.
+    return first_match(target.__contains__) or first_match(_is_element)

@@ -40,6 +40,23 @@ def number(line: str, start: int, stop: int, what: str, *, blank=None) -> float:
     return value
 
 
+def numbers(line: str, spans, what) -> list[float]:
+    """Several Fortran reals of one line: ``spans`` are (start, stop) column pairs (1-based,
+    inclusive), ``what`` names each (a sequence of the same length).
+
+    All fields are read at once when every one is a finite real (``D`` exponents included);
+    otherwise each goes through :func:`number`, which raises the exact error.
+    """
+    text = line.replace("D", "E").replace("d", "e")
+    try:
+        values = [float(text[a - 1:b]) for a, b in spans]
+    except ValueError:
+        values = None
+    if values is not None and all(math.isfinite(v) for v in values):
+        return values
+    return [number(line, a, b, w) for (a, b), w in zip(spans, what)]
+
+
 def element_pairs(text: str, width_sym: int, width_num: int, n: int, what="formula") -> dict:
     """Parse up to ``n`` symbol+count pairs from fixed columns into {symbol: count}.
 

@@ -24,9 +24,11 @@ from ..errors import RecordError
 from ..manifest import Source
 from ..thermo import COEF_COLUMNS, from_nasa7
 from .base import RECORD_COLUMNS, REJECTED_COLUMNS, SEGMENT_COLUMNS, ReadResult, frame, rejected_row
-from .fortran import element_pairs, field, number
+from .fortran import element_pairs, field, number, numbers
 
 PHASES = {"G": "g", "L": "l", "S": "cr", "C": "cr"}
+#: the five 15-column coefficient fields of lines 2-4
+_SPANS = tuple((1 + 15 * i, 15 + 15 * i) for i in range(5))
 _DEFAULT_T = re.compile(r"^\s*([-+0-9.EeDd]+)\s+([-+0-9.EeDd]+)\s+([-+0-9.EeDd]+)")
 
 
@@ -71,10 +73,11 @@ def _parse_record(lines: list[str], default_tmid: float | None, layout: str) -> 
     if not (0 < t_low < t_mid < t_high):
         raise RecordError(f"line 1: temperatures T_low={t_low:g}, T_common={t_mid:g}, "
                           f"T_high={t_high:g} K are not ascending and positive")
-    up = [number(l2, 1 + 15 * i, 15 + 15 * i, f"line 2 coefficient {i + 1}") for i in range(5)]
-    up += [number(l3, 1 + 15 * i, 15 + 15 * i, f"line 3 coefficient {i + 1}") for i in range(2)]
-    lo = [number(l3, 31 + 15 * i, 45 + 15 * i, f"line 3 coefficient {i + 3}") for i in range(3)]
-    lo += [number(l4, 1 + 15 * i, 15 + 15 * i, f"line 4 coefficient {i + 1}") for i in range(4)]
+    up = numbers(l2, _SPANS[:5], [f"line 2 coefficient {i + 1}" for i in range(5)])
+    l3_values = numbers(l3, _SPANS[:5], [f"line 3 coefficient {i + 1}" for i in range(5)])
+    up += l3_values[:2]
+    lo = l3_values[2:]
+    lo += numbers(l4, _SPANS[:4], [f"line 4 coefficient {i + 1}" for i in range(4)])
     dfh = np.nan
     if layout == "tm4513":
         dfh_r = number(l4, 61, 75, "ΔfH°/R", blank=np.nan)

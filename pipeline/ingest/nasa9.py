@@ -38,10 +38,15 @@ from ..errors import RecordError
 from ..manifest import Source
 from ..thermo import COEF_COLUMNS
 from .base import RECORD_COLUMNS, REJECTED_COLUMNS, SEGMENT_COLUMNS, ReadResult, frame, rejected_row
-from .fortran import element_pairs, field, number
+from .fortran import element_pairs, field, number, numbers
 
 #: The published exponent set of the nine-term form (NASA/TP-2002-211556, eq. 1).
 STANDARD_EXPONENTS = (-2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0, 0.0)
+#: columns 24-63 of an interval line holding the standard exponents as 8F5.1 (a fast path)
+_STANDARD_EXPONENT_TEXT = "".join(f"{e:5.1f}" for e in STANDARD_EXPONENTS)
+#: coefficient columns: a1-a5 on the first line; a6, a7, b1, b2 on the second
+_SPANS_1 = tuple((1 + 16 * i, 16 + 16 * i) for i in range(5))
+_SPANS_2 = ((1, 16), (17, 32), (49, 64), (65, 80))
 _SUFFIX = re.compile(r"\((?P<suffix>[^()]*)\)\s*$")
 _NUMBERS = re.compile(r"^\s*[-+]?\d*\.?\d+(?:[EeDd][-+]?\d+)?\s+[-+]?\d*\.?\d+")
 #: Gaps and overlaps between intervals smaller than this are rounding of the T fields [K].
@@ -125,18 +130,21 @@ def _parse_interval(tline: str, c1: str, c2: str, k: int) -> tuple[float, float,
     if ncoef != "7":
         raise RecordError(f"{where}: number of coefficients {ncoef or 'blank'!r} in column 23; "
                           "expected 7")
-    exps = tuple(number(tline, 24 + 5 * i, 28 + 5 * i, f"{where} exponent {i + 1}", blank=0.0)
-                 for i in range(8))
+    if tline[23:63] == _STANDARD_EXPONENT_TEXT:
+        exps = STANDARD_EXPONENTS
+    else:
+        exps = tuple(number(tline, 24 + 5 * i, 28 + 5 * i, f"{where} exponent {i + 1}", blank=0.0)
+                     for i in range(8))
     if exps != STANDARD_EXPONENTS:
         raise RecordError(f"{where}: non-standard exponents {' '.join(f'{e:g}' for e in exps)} "
                           "(columns 24-63); only -2 -1 0 1 2 3 4 0 is the published nine-term "
                           "form")
-    a = [number(c1, 1 + 16 * i, 16 + 16 * i, f"{where} coefficient a{i + 1}") for i in range(5)]
-    a += [number(c2, 1 + 16 * i, 16 + 16 * i, f"{where} coefficient a{i + 6}") for i in range(2)]
+    a = numbers(c1, _SPANS_1, [f"{where} coefficient a{i + 1}" for i in range(5)])
+    a += numbers(c2, _SPANS_2[:2], [f"{where} coefficient a{i + 6}" for i in range(2)])
     if field(c2, 33, 48).strip():
         raise RecordError(f"{where}: columns 33-48 of the second coefficient line should be "
                           f"blank, found {field(c2, 33, 48).strip()!r}")
-    b = [number(c2, 49, 64, f"{where} b1"), number(c2, 65, 80, f"{where} b2")]
+    b = numbers(c2, _SPANS_2[2:], [f"{where} b1", f"{where} b2"])
     if not (0 < t_lo < t_hi):
         raise RecordError(f"{where}: T_low={t_lo:g} K, T_high={t_hi:g} K are not ascending and positive")
     return t_lo, t_hi, a + b

@@ -10,12 +10,13 @@ from __future__ import annotations
 
 import json
 import re
+from functools import lru_cache
 
 import numpy as np
 import pandas as pd
 
 from ..findings import make_findings
-from ..formula import FormulaError, SpeciesKey, composition_key, parse_formula, parse_key, recase_name
+from ..formula import CACHE_SIZE, FormulaError, SpeciesKey, composition_key, parse_formula, parse_key, recase_name
 
 _SUFFIX = re.compile(r"^(?P<base>.+?)\((?P<suffix>[^()]*)\)$")
 _STATE_WORDS = {"g": "g", "l": "l", "liq": "l", "cr": "cr", "s": "cr", "c": "cr", "aq": "aq"}
@@ -145,32 +146,50 @@ def _elements_json(elements: dict) -> str:
     return json.dumps({k: v for k, v in items}, sort_keys=True)
 
 
+@lru_cache(maxsize=CACHE_SIZE)
+def _formula_columns(formula: str) -> tuple:
+    """(charge, elements_json, composition, n_atoms, molar_mass_g_mol) of one formula; many
+    species share a formula (phases, polymorphs, isomers), and stages ask again."""
+    f = parse_formula(formula)
+    return (f.charge, _elements_json(f.elements), composition_key(f.elements, f.charge), f.n_atoms,
+            f.molar_mass_g_mol)
+
+
 def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
     """One row per species key with formula, state, label, charge, elements and molar mass."""
     meta = species_meta.drop_duplicates("species").set_index("species")
-    rows = []
     meta_rows = {k: i for i, k in enumerate(meta.index)}
     m_cols = {c: meta[c].to_numpy(object) for c in
               ("stated_molar_mass_g_mol", "reference_element", "geometry", "cas", "aliases", "source_id")}
-    for key in sorted(set(keys) | set(meta.index)):
-        sk = parse_key(key)
-        f = parse_formula(sk.formula)
-        i = meta_rows.get(key)
-        if i is None:
-            mm, ref, geo, cas, aliases, msrc = np.nan, False, None, None, "", None
-        else:
-            mm = float(m_cols["stated_molar_mass_g_mol"][i]) if pd.notna(m_cols["stated_molar_mass_g_mol"][i]) \
-                else np.nan
-            ref = bool(m_cols["reference_element"][i])
-            g = m_cols["geometry"][i]
-            geo = g if isinstance(g, str) else None
-            cas, aliases, msrc = m_cols["cas"][i], m_cols["aliases"][i], m_cols["source_id"][i]
-        n_atoms = f.n_atoms
-        rows.append((key, sk.formula, sk.state, sk.label, f.charge, _elements_json(f.elements),
-                     composition_key(f.elements, f.charge), n_atoms, f.molar_mass_g_mol, mm, ref,
-                     geo if geo is not None else ("atom" if n_atoms == 1 else None),
-                     cas, aliases, msrc))
     cols = ["species", "formula", "state", "label", "charge", "elements_json", "composition",
             "n_atoms", "molar_mass_g_mol", "stated_molar_mass_g_mol", "reference_element",
             "geometry", "cas", "aliases", "meta_source_id"]
-    return pd.DataFrame.from_records(rows, columns=cols) if rows else pd.DataFrame(columns=cols)
+    all_keys = sorted(set(keys) | set(meta.index))
+    if not all_keys:
+        return pd.DataFrame(columns=cols)
+    parts = [parse_key(k) for k in all_keys]
+    derived = [_formula_columns(sk.formula) for sk in parts]
+    charge, ej, comp, n_atoms, mm_calc = (list(c) for c in zip(*derived))
+    n = len(all_keys)
+    mm = np.full(n, np.nan)
+    ref = np.zeros(n, bool)
+    geo = np.array([None] * n, dtype=object)
+    cas, aliases, msrc = geo.copy(), np.array([""] * n, dtype=object), geo.copy()
+    for j, key in enumerate(all_keys):
+        i = meta_rows.get(key)
+        if i is None:
+            continue
+        v = m_cols["stated_molar_mass_g_mol"][i]
+        mm[j] = float(v) if pd.notna(v) else np.nan
+        ref[j] = bool(m_cols["reference_element"][i])
+        g = m_cols["geometry"][i]
+        geo[j] = g if isinstance(g, str) else None
+        cas[j], aliases[j], msrc[j] = m_cols["cas"][i], m_cols["aliases"][i], m_cols["source_id"][i]
+    atoms = np.asarray(n_atoms, float)
+    geo = np.where(pd.isna(geo) & (atoms == 1), "atom", geo).astype(object)
+    geo[pd.isna(geo)] = None
+    rows = {"species": all_keys, "formula": [sk.formula for sk in parts], "state": [sk.state for sk in parts],
+            "label": [sk.label for sk in parts], "charge": charge, "elements_json": ej, "composition": comp,
+            "n_atoms": atoms, "molar_mass_g_mol": np.asarray(mm_calc, float), "stated_molar_mass_g_mol": mm,
+            "reference_element": ref, "geometry": geo, "cas": cas, "aliases": aliases, "meta_source_id": msrc}
+    return pd.DataFrame(rows, columns=cols)
