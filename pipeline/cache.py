@@ -290,17 +290,46 @@ def store_source(out: Path, key: str, result) -> None:
         shutil.rmtree(tmp, ignore_errors=True)
 
 
+#: Parse sources in worker processes when the files still to be read hold at least this
+#: many bytes in total (below it, starting the workers costs more than it saves).
+PARALLEL_MIN_BYTES = 16 << 20
+
+
+def _workers() -> int:
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:                      # not Linux
+        return os.cpu_count() or 1
+
+
+def _read_in_worker(reader, path: Path, src, out: Path, key: str):
+    """A worker's job: read one source and store it in the cache. Any error is returned as
+    None: the parent then reads the source itself, so the error it raises is its own."""
+    try:
+        result = reader(path, src, src.path)
+    except Exception:                           # noqa: BLE001 - re-raised by the parent's own read
+        return None
+    try:
+        store_source(out, key, result)
+    except OSError:
+        pass
+    return result
+
+
 def read_sources(run, readers: dict) -> dict:
     """Every source's ReadResult: from the cache when its key is there, else read (and stored).
 
-    Records ``run.extra["reuse"] = {"sources_reused": [...], "sources_read": [...]}``.
+    Sources still to be read are parsed in parallel worker processes (one per CPU, largest
+    file first) when they are large together (:data:`PARALLEL_MIN_BYTES`); each source is
+    read by exactly the same reader either way. Records ``run.extra["reuse"] =
+    {"sources_reused": [...], "sources_read": [...], "reader_processes": n}``.
     """
     from .errors import InputError
 
     m = run.manifest
     hashes = source_hashes(run)
-    results, reused, read, keys = {}, [], [], {}
-    for i, src in enumerate(m.sources):
+    results, reused, keys, todo = {}, [], {}, []
+    for src in m.sources:
         reader = readers.get(src.format)
         if reader is None:
             raise InputError("sources.toml", src.line, f"format {src.format!r}",
@@ -311,17 +340,40 @@ def read_sources(run, readers: dict) -> dict:
         if got is not None:
             results[src.id] = got
             reused.append(src.id)
-            continue
-        run.progress(f"reading {src.path}", i, len(m.sources))
-        results[src.id] = reader(m.path_of(src), src, src.path)
-        read.append(src.id)
+        else:
+            todo.append(src)
+    sizes = {s.id: m.path_of(s).stat().st_size for s in todo}
+    workers = min(_workers(), len(todo))
+    if workers < 2 or sum(sizes.values()) < PARALLEL_MIN_BYTES:
+        workers = 1
+    if workers > 1:
+        import concurrent.futures as cf
+        import multiprocessing as mp
+
         try:
-            store_source(run.out, key, results[src.id])
-        except OSError:
-            pass          # a read-only or full disk costs speed, not results
+            with cf.ProcessPoolExecutor(max_workers=workers, mp_context=mp.get_context("spawn")) as pool:
+                futures = {pool.submit(_read_in_worker, readers[s.format], m.path_of(s), s, run.out,
+                                       keys[s.id]): s for s in sorted(todo, key=lambda s: -sizes[s.id])}
+                for done, fut in enumerate(cf.as_completed(futures)):
+                    src = futures[fut]
+                    run.progress(f"read {src.path}", done + 1, len(todo))
+                    results[src.id] = fut.result()
+        except (cf.process.BrokenProcessPool, OSError, RuntimeError):
+            # no workers here (a killed worker, a main module that cannot be imported again,
+            # no /dev/shm): whatever the workers did not read is read below, in this process
+            workers = 1
+    for i, src in enumerate(todo):
+        if results.get(src.id) is None:             # serial, or a worker's read failed
+            run.progress(f"reading {src.path}", i, len(todo))
+            results[src.id] = readers[src.format](m.path_of(src), src, src.path)
+            try:
+                store_source(run.out, keys[src.id], results[src.id])
+            except OSError:
+                pass          # a read-only or full disk costs speed, not results
     run.extra["source_keys"] = keys
-    run.extra["reuse"] = {"sources_reused": reused, "sources_read": read}
-    return results
+    run.extra["reuse"] = {"sources_reused": reused, "sources_read": [s.id for s in todo],
+                          "reader_processes": workers if todo else 0}
+    return {s.id: results[s.id] for s in m.sources}
 
 
 def prune_sources(out: Path, keep: set[str]) -> None:

@@ -158,3 +158,37 @@ def test_run_key_depends_on_content_not_on_file_times(database, tmp_path):
     run3 = Run(raw=raw, out=tmp_path / "out", waivers=database / "waivers.toml")
     run3.manifest = load_manifest(raw)
     assert cache.run_key(run3) != k1
+
+
+def test_sources_read_in_worker_processes_give_the_same_tables(database, tmp_path, monkeypatch):
+    """Large databases are parsed by one worker process per CPU; the tables must not depend
+    on whether a source was read in a worker or in the run's own process."""
+    serial = _tables(_run(database, database / "raw", tmp_path / "serial").out)
+    monkeypatch.setattr(cache, "PARALLEL_MIN_BYTES", 0)
+    monkeypatch.setattr(cache, "_workers", lambda: 2)
+    run = _run(database, database / "raw", tmp_path / "parallel")
+    parallel = _tables(run.out)
+    _same_results(serial, parallel)
+    assert sorted(run.extra["reuse"]["sources_read"]) == sorted(s.id for s in run.manifest.sources)
+    assert run.extra["reuse"]["reader_processes"] == 2
+
+
+def test_a_source_that_fails_in_a_worker_raises_the_runs_own_error(tmp_path, monkeypatch):
+    """A worker's failure is not reported from the worker: the run reads the source itself and
+    raises the usual error, naming file and line."""
+    from pipeline.errors import InputError
+
+    raw = tmp_path / "raw"
+    raw.mkdir()
+    (raw / "sources.toml").write_text(
+        '[database]\nname = "t"\n\n[[source]]\nid = "a"\npath = "a.csv"\nformat = "table-csv"\n'
+        'citation = "x"\n\n[[source]]\nid = "b"\npath = "b.csv"\nformat = "table-csv"\ncitation = "x"\n')
+    (raw / "a.csv").write_text("species,t,cp\nAr(g),298.15,20.786\n")       # cp without a unit
+    (raw / "b.csv").write_text("species,t,cp [J/(mol*K)]\nAr(g),298.15,20.786\n")
+    monkeypatch.setattr(cache, "PARALLEL_MIN_BYTES", 0)
+    monkeypatch.setattr(cache, "_workers", lambda: 2)
+    (tmp_path / "waivers.toml").write_text("")
+    with pytest.raises(InputError) as err:
+        _run(tmp_path, raw, tmp_path / "out")
+    assert err.value.file == "a.csv" and err.value.line == 1
+    assert "cp" in str(err.value) and "fix" in str(err.value)
