@@ -16,12 +16,25 @@ import re
 from functools import lru_cache
 
 import numpy as np
-import pint
 
 from .errors import InputError, UnitError
 
-#: The one registry. ``UREG("1 cal").m_as("J") == 4.184`` (thermochemical calorie).
-UREG = pint.UnitRegistry()
+
+@lru_cache(maxsize=1)
+def registry():
+    """The one pint registry, built on first use (building it takes a noticeable fraction of a
+    second, which a run that reuses its previous release never needs).
+    ``registry().Quantity(1, "cal").m_as("J") == 4.184`` (thermochemical calorie)."""
+    import pint
+
+    return pint.UnitRegistry()
+
+
+def __getattr__(name: str):
+    """``UREG``: the registry, as a module attribute (built on first access)."""
+    if name == "UREG":
+        return registry()
+    raise AttributeError(f"module {__name__!r} has no attribute {name!r}")
 
 #: SI target of each quantity kind that appears in raw files.
 SI_ENERGY = "J/mol"
@@ -34,8 +47,13 @@ ENERGY_UNITS = {"J": "J", "kJ": "kJ", "cal": "cal", "kcal": "kcal"}
 #: Texts that mean "no unit" for a dimensionless column (log K).
 DIMENSIONLESS_TEXTS = frozenset({"", "1", "-", "dimensionless", "none"})
 
-_DIM = {"energy": UREG.Quantity(1, "J/mol").dimensionality,
-        "entropy": UREG.Quantity(1, "J/mol/K").dimensionality}
+
+
+@lru_cache(maxsize=None)
+def _dimensionality(kind: str):
+    return registry().Quantity(1, {"energy": "J/mol", "entropy": "J/mol/K"}[kind]).dimensionality
+
+
 _SUPERSCRIPTS = str.maketrans("⁰¹²³⁴⁵⁶⁷⁸⁹⁻", "0123456789-")
 _BARE_EXPONENT = re.compile(r"(?<=[A-Za-z])(-?\d+)(?![\d.])")
 
@@ -49,7 +67,7 @@ def _normalise(text: str) -> str:
 
 
 @lru_cache(maxsize=256)
-def parse_unit(text: str) -> pint.Unit:
+def parse_unit(text: str):
     """A pint unit from text as written in a header or a ``unit`` cell.
 
     Raises
@@ -58,7 +76,7 @@ def parse_unit(text: str) -> pint.Unit:
         If pint does not know the unit.
     """
     try:
-        return UREG.Unit(_normalise(text))
+        return registry().Unit(_normalise(text))
     except Exception as exc:  # pint raises several unrelated types (and TypeError)
         raise UnitError(text, "a unit such as kJ/mol, kcal/mol, J/(mol*K) or cal/(mol*K)") from exc
 
@@ -80,8 +98,8 @@ def factor_to_si(unit_text: str, kind: str) -> float:
         If the unit is unknown or has the wrong dimension.
     """
     u = parse_unit(unit_text)
-    q = UREG.Quantity(1.0, u)
-    if q.dimensionality != _DIM[kind]:
+    q = registry().Quantity(1.0, u)
+    if q.dimensionality != _dimensionality(kind):
         raise UnitError(unit_text, f"a unit of {SI_UNIT[kind]} (e.g. "
                         + ("kJ/mol, kcal/mol)" if kind == "energy" else "J/(mol*K), cal/(mol*K))"))
     return float(q.m_as(SI_UNIT[kind]))
@@ -95,7 +113,7 @@ def to_si(values: np.ndarray, unit_text: str, kind: str) -> np.ndarray:
 def is_kelvin(unit_text: str) -> bool:
     """True when ``unit_text`` is the kelvin (temperatures must be absolute, in K)."""
     try:
-        return parse_unit(unit_text) == UREG.kelvin
+        return parse_unit(unit_text) == registry().kelvin
     except UnitError:
         return False
 
