@@ -302,11 +302,22 @@ def _workers() -> int:
         return os.cpu_count() or 1
 
 
+def _read(reader, path: Path, src):
+    """``reader``'s result, with the species keys its records build for themselves
+    (:func:`pipeline.ingest.resolve.built_keys`, the costly part of resolving keys)."""
+    from .ingest.resolve import built_keys
+
+    result = reader(path, src, src.path)
+    if len(result.records):
+        result.records = built_keys(result.records)
+    return result
+
+
 def _read_in_worker(reader, path: Path, src, out: Path, key: str):
     """A worker's job: read one source and store it in the cache. Any error is returned as
     None: the parent then reads the source itself, so the error it raises is its own."""
     try:
-        result = reader(path, src, src.path)
+        result = _read(reader, path, src)
     except Exception:                           # noqa: BLE001 - re-raised by the parent's own read
         return None
     try:
@@ -365,7 +376,7 @@ def read_sources(run, readers: dict) -> dict:
     for i, src in enumerate(todo):
         if results.get(src.id) is None:             # serial, or a worker's read failed
             run.progress(f"reading {src.path}", i, len(todo))
-            results[src.id] = readers[src.format](m.path_of(src), src, src.path)
+            results[src.id] = _read(readers[src.format], m.path_of(src), src)
             try:
                 store_source(run.out, keys[src.id], results[src.id])
             except OSError:

@@ -71,6 +71,40 @@ def build_key(name: str, state: str, label: str | None, elements: dict, charge: 
     return SpeciesKey(formula, state, label).key, ok
 
 
+#: Columns :func:`built_keys` adds to a source's records (dropped by :func:`resolve_records`).
+BUILT_COLUMNS = ("built_key", "built_ok")
+
+
+def built_keys(records: pd.DataFrame) -> pd.DataFrame:
+    """``records`` with :func:`build_key`'s result for every record that names no full key
+    (``species_hint``): ``built_key`` and ``built_ok``. It depends on the record alone, so it
+    is computed where the source is read (in a worker process for large databases, and kept
+    with the source's cached frames); :func:`resolve_records` still lets an alias win."""
+    out = records.copy()
+    keys, oks = [], []
+    parsed: dict = {}
+    for name, hint, state, label, ej, charge in zip(
+            *(records[c].to_numpy(object) for c in ("name", "species_hint", "state", "label", "elements_json",
+                                                   "charge"))):
+        if isinstance(hint, str) and hint:
+            keys.append(None)
+            oks.append(True)
+            continue
+        if isinstance(ej, str):
+            elements = parsed.get(ej)
+            if elements is None:
+                elements = parsed[ej] = json.loads(ej)
+        else:
+            elements = {}
+        z = 0 if pd.isna(charge) else int(charge)
+        key, ok = build_key(name, state, label if isinstance(label, str) else None, elements, z)
+        keys.append(key)
+        oks.append(ok)
+    out["built_key"] = pd.Series(keys, index=out.index, dtype=object)
+    out["built_ok"] = np.asarray(oks, bool)
+    return out
+
+
 def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     """Assign ``species`` to every record. Returns (records, findings, bad_mask).
 
@@ -79,11 +113,21 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     """
     amap = alias_map(species_meta)
     keys, warn_rows, bad, reasons = [], [], [], []
+    hinted = records["species_hint"].map(lambda h: isinstance(h, str) and h != "").to_numpy(bool)
+    if "built_key" not in records:
+        records = built_keys(records)
+    elif (need := (records["built_key"].isna().to_numpy() & ~hinted)).any():
+        # parts read without the keys (e.g. parsed frames cached by an earlier version)
+        records = records.copy()
+        done = built_keys(records[need].drop(columns=list(BUILT_COLUMNS)))
+        records.loc[need, "built_key"] = done["built_key"].to_numpy(object)
+        records.loc[need, "built_ok"] = done["built_ok"].to_numpy(bool)
     cols = {c: records[c].to_numpy(object) for c in
-            ("record_id", "source_id", "name", "species_hint", "state", "label", "elements_json", "charge")}
+            ("record_id", "source_id", "name", "species_hint", "state", "label", "elements_json", "charge",
+             "built_key", "built_ok")}
     parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
     checked: dict = {}          # (key, elements_json) → reason or None
-    for rid, src, name, hint, state, label, ej, charge in zip(*cols.values()):
+    for rid, src, name, hint, state, label, ej, charge, built, built_ok in zip(*cols.values()):
         if isinstance(ej, str):
             elements = parsed_json.get(ej)
             if elements is None:
@@ -98,8 +142,7 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         if key is None and isinstance(hint, str) and hint:
             key = hint
         if key is None:
-            z = 0 if pd.isna(charge) else int(charge)
-            key, ok = build_key(name, state, label if isinstance(label, str) else None, elements, z)
+            key, ok = built, bool(built_ok)
             if key.lower() in amap:          # the built key may itself be a declared alias
                 key, ok = amap[key.lower()], True
             if not ok:
@@ -124,7 +167,7 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         keys.append(key)
         bad.append(reason is not None)
         reasons.append(reason)
-    out = records.copy()
+    out = records.drop(columns=list(BUILT_COLUMNS))
     out["species"] = keys
     findings = make_findings(
         check_id="schema.species-key", severity="warning",
