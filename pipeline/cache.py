@@ -305,11 +305,19 @@ def _workers() -> int:
 def _read(reader, path: Path, src):
     """``reader``'s result, with the species keys its records build for themselves
     (:func:`pipeline.ingest.resolve.built_keys`, the costly part of resolving keys)."""
-    from .ingest.resolve import built_keys
+    from .ingest.resolve import built_keys, formula_columns_of
+    from .stages import _reaction_species
 
     result = reader(path, src, src.path)
+    keys = []
     if len(result.records):
         result.records = built_keys(result.records)
+        keys += [h if isinstance(h, str) and h else b for h, b in
+                 zip(result.records["species_hint"].to_numpy(object), result.records["built_key"].to_numpy(object))]
+    if len(result.reactions):
+        keys += _reaction_species(result.reactions)
+    # not a field: travels back from a worker with the result, is not cached with it
+    result.formula_columns = formula_columns_of(keys)
     return result
 
 

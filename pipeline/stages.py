@@ -96,7 +96,10 @@ def stage_ingest(run: Run) -> None:
         recs = recs[~bad]
     frames["records"] = recs.reset_index(drop=True)
     keys = list(frames["records"]["species"]) + _reaction_species(frames["reactions"])
-    frames["species"] = species_table(keys, frames["species_meta"])
+    known = {}
+    for r in results.values():
+        known.update(getattr(r, "formula_columns", {}))
+    frames["species"] = species_table(keys, frames["species_meta"], known)
     standard_state(run)
     for f in unlisted_files(m):
         run.add_findings(make_findings(check_id="schema.unlisted-file", severity="warning", subject=f,

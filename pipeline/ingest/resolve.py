@@ -72,16 +72,33 @@ def build_key(name: str, state: str, label: str | None, elements: dict, charge: 
 
 
 #: Columns :func:`built_keys` adds to a source's records (dropped by :func:`resolve_records`).
-BUILT_COLUMNS = ("built_key", "built_ok")
+BUILT_COLUMNS = ("built_key", "built_ok", "built_reason")
+
+
+def key_reason(key: str, elements: dict) -> str | None:
+    """Why ``key`` cannot name a record with these element counts (None: it can): the key
+    does not parse, or its formula contradicts the counts."""
+    try:
+        sk = parse_key(key)
+        f = parse_formula(sk.formula)
+    except FormulaError as exc:
+        return f"species key: {exc}"
+    if elements:
+        mine = {k: float(v) for k, v in f.elements.items() if k != "e"}
+        theirs = {k: float(v) for k, v in elements.items() if v}
+        if mine != theirs and all(k[0].isupper() for k in theirs):
+            return (f"record elements {theirs} contradict species {key!r} "
+                    f"({mine}) — fix: correct the alias or the formula field")
+    return None
 
 
 def built_keys(records: pd.DataFrame) -> pd.DataFrame:
     """``records`` with :func:`build_key`'s result for every record that names no full key
-    (``species_hint``): ``built_key`` and ``built_ok``. It depends on the record alone, so it
+    (``species_hint``): ``built_key``, ``built_ok`` and ``built_reason`` (:func:`key_reason`). It depends on the record alone, so it
     is computed where the source is read (in a worker process for large databases, and kept
     with the source's cached frames); :func:`resolve_records` still lets an alias win."""
     out = records.copy()
-    keys, oks = [], []
+    keys, oks, reasons = [], [], []
     parsed: dict = {}
     for name, hint, state, label, ej, charge in zip(
             *(records[c].to_numpy(object) for c in ("name", "species_hint", "state", "label", "elements_json",
@@ -89,6 +106,7 @@ def built_keys(records: pd.DataFrame) -> pd.DataFrame:
         if isinstance(hint, str) and hint:
             keys.append(None)
             oks.append(True)
+            reasons.append(None)
             continue
         if isinstance(ej, str):
             elements = parsed.get(ej)
@@ -100,8 +118,10 @@ def built_keys(records: pd.DataFrame) -> pd.DataFrame:
         key, ok = build_key(name, state, label if isinstance(label, str) else None, elements, z)
         keys.append(key)
         oks.append(ok)
+        reasons.append(key_reason(key, elements))
     out["built_key"] = pd.Series(keys, index=out.index, dtype=object)
     out["built_ok"] = np.asarray(oks, bool)
+    out["built_reason"] = pd.Series(reasons, index=out.index, dtype=object)
     return out
 
 
@@ -122,12 +142,13 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         done = built_keys(records[need].drop(columns=list(BUILT_COLUMNS)))
         records.loc[need, "built_key"] = done["built_key"].to_numpy(object)
         records.loc[need, "built_ok"] = done["built_ok"].to_numpy(bool)
+        records.loc[need, "built_reason"] = done["built_reason"].to_numpy(object)
     cols = {c: records[c].to_numpy(object) for c in
             ("record_id", "source_id", "name", "species_hint", "state", "label", "elements_json", "charge",
-             "built_key", "built_ok")}
+             "built_key", "built_ok", "built_reason")}
     parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
     checked: dict = {}          # (key, elements_json) → reason or None
-    for rid, src, name, hint, state, label, ej, charge, built, built_ok in zip(*cols.values()):
+    for rid, src, name, hint, state, label, ej, charge, built, built_ok, built_reason in zip(*cols.values()):
         if isinstance(ej, str):
             elements = parsed_json.get(ej)
             if elements is None:
@@ -150,20 +171,10 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         memo = (key, ej if isinstance(ej, str) else None)
         if memo in checked:
             reason = checked[memo]
+        elif key is built and isinstance(built_reason, str | type(None)):
+            reason = checked[memo] = built_reason       # checked where the source was read
         else:
-            reason = None
-            try:
-                sk = parse_key(key)
-                f = parse_formula(sk.formula)
-                if elements:
-                    mine = {k: float(v) for k, v in f.elements.items() if k != "e"}
-                    theirs = {k: float(v) for k, v in elements.items() if v}
-                    if mine != theirs and all(k[0].isupper() for k in theirs):
-                        reason = (f"record elements {theirs} contradict species {key!r} "
-                                  f"({mine}) — fix: correct the alias or the formula field")
-            except FormulaError as exc:
-                reason = f"species key: {exc}"
-            checked[memo] = reason
+            reason = checked[memo] = key_reason(key, elements)
         keys.append(key)
         bad.append(reason is not None)
         reasons.append(reason)
@@ -198,8 +209,26 @@ def _formula_columns(formula: str) -> tuple:
             f.molar_mass_g_mol)
 
 
-def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
-    """One row per species key with formula, state, label, charge, elements and molar mass."""
+def formula_columns_of(keys) -> dict:
+    """formula → :func:`_formula_columns` for the formulas of these species keys (those that
+    parse); computed where a source is read and handed to :func:`species_table`."""
+    out = {}
+    for key in set(keys):
+        if not isinstance(key, str):
+            continue
+        try:
+            formula = parse_key(key).formula
+            if formula not in out:
+                out[formula] = _formula_columns(formula)
+        except FormulaError:
+            continue
+    return out
+
+
+def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | None = None) -> pd.DataFrame:
+    """One row per species key with formula, state, label, charge, elements and molar mass.
+
+    ``known``: formula → :func:`_formula_columns`, already computed (by the readers)."""
     meta = species_meta.drop_duplicates("species").set_index("species")
     meta_rows = {k: i for i, k in enumerate(meta.index)}
     m_cols = {c: meta[c].to_numpy(object) for c in
@@ -211,7 +240,8 @@ def species_table(keys: list[str], species_meta: pd.DataFrame) -> pd.DataFrame:
     if not all_keys:
         return pd.DataFrame(columns=cols)
     parts = [parse_key(k) for k in all_keys]
-    derived = [_formula_columns(sk.formula) for sk in parts]
+    known = known or {}
+    derived = [known.get(sk.formula) or _formula_columns(sk.formula) for sk in parts]
     charge, ej, comp, n_atoms, mm_calc = (list(c) for c in zip(*derived))
     n = len(all_keys)
     mm = np.full(n, np.nan)
