@@ -155,27 +155,73 @@ def _column_doc(table: str, col: str, docs: dict | None = None) -> str:
     return col.replace("_", " ")
 
 
+def _sql_ready(col: pd.Series) -> pd.Series | None:
+    """An object column in the form DuckDB should store, or None to keep it as it is.
+
+    All booleans → nullable boolean; all numbers → numeric; all null → None values (SQL
+    type NULL); otherwise text, each value ``str(v)`` and None/NaN → NULL. The kind comes
+    from pandas' ``infer_dtype`` (one pass in C); only mixed columns, and text columns
+    holding unusual null markers (``pd.NA``, ``NaT``: written as their text, as always),
+    are converted value by value.
+    """
+    kind = pd.api.types.infer_dtype(col, skipna=True)
+    if kind == "empty":
+        return pd.Series([None] * len(col), index=col.index, dtype=object)
+    if kind == "boolean":
+        return col.astype("boolean")
+    if kind in ("integer", "floating", "mixed-integer-float"):
+        return pd.to_numeric(col)
+    if kind == "string":
+        vals = col.to_numpy(dtype=object)
+        null = pd.isna(vals)
+        if not null.any() or all(v is None or isinstance(v, float) for v in vals[null]):
+            return None  # text with None/NaN for missing: Arrow writes exactly that
+    return _sql_ready_by_value(col)
+
+
+def _sql_ready_by_value(col: pd.Series) -> pd.Series:
+    """:func:`_sql_ready` value by value (the general case)."""
+    non_null = col.dropna()
+    if len(non_null) and non_null.map(lambda v: isinstance(v, (bool, np.bool_))).all():
+        return col.astype("boolean")
+    if len(non_null) and non_null.map(lambda v: isinstance(v, (int, float, np.number)) and not isinstance(v, bool)).all():
+        return pd.to_numeric(col)
+    return col.map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
+
+
 def write_table(con: duckdb.DuckDBPyConnection, name: str, df: pd.DataFrame, docs: dict | None = None) -> None:
     """Create ``name`` from ``df`` and attach table and column comments (``docs``, default
-    :data:`DOCS`; an undocumented column gets a comment built from its name and unit)."""
+    :data:`DOCS`; an undocumented column gets a comment built from its name and unit).
+
+    SQL types follow the dtypes (text → VARCHAR, float → DOUBLE with NaN → NULL, int →
+    BIGINT, bool → BOOLEAN); object columns are typed by :func:`_sql_ready`. The frame is
+    handed to DuckDB as one Arrow table (no copy of the numeric columns).
+    """
+    import pyarrow as pa
+
     docs = docs or DOCS
-    df = df.copy()
+    fixed = {}
     for c in df.columns:
         if df[c].dtype == object:
-            non_null = df[c].dropna()
-            if len(non_null) and non_null.map(lambda v: isinstance(v, (bool, np.bool_))).all():
-                df[c] = df[c].astype("boolean")
-            elif len(non_null) and non_null.map(lambda v: isinstance(v, (int, float, np.number)) and not isinstance(v, bool)).all():
-                df[c] = pd.to_numeric(df[c])
-            else:
-                df[c] = df[c].map(lambda v: None if v is None or (isinstance(v, float) and np.isnan(v)) else str(v))
-    con.register("_frame", df)
-    con.execute(f'CREATE OR REPLACE TABLE "{name}" AS SELECT * FROM _frame')
-    con.unregister("_frame")
+            ready = _sql_ready(df[c])
+            if ready is not None:
+                fixed[c] = ready
+    if fixed:
+        df = df.assign(**fixed)
+    try:
+        frame = pa.Table.from_pandas(df, preserve_index=False)
+    except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError):
+        frame = df  # DuckDB's own pandas scan
+    con.register("_frame", frame)
+    try:
+        con.execute(f'CREATE OR REPLACE TABLE "{name}" AS SELECT * FROM _frame')
+    finally:
+        con.unregister("_frame")
+    del frame
     table_doc = docs.get(name, ("", {}))[0] or f"{name.replace('_', ' ')} (side table of a pipeline stage)"
-    con.execute(f'COMMENT ON TABLE "{name}" IS {_comment_sql(table_doc)}')
-    for c in df.columns:
-        con.execute(f'COMMENT ON COLUMN "{name}"."{c}" IS {_comment_sql(_column_doc(name, c, docs))}')
+    comments = [f'COMMENT ON TABLE "{name}" IS {_comment_sql(table_doc)}']
+    comments += [f'COMMENT ON COLUMN "{name}"."{c}" IS {_comment_sql(_column_doc(name, c, docs))}' for c in df.columns]
+    con.execute(";\n".join(comments))
 
 
 def previous_release(out: Path) -> dict[str, pd.DataFrame]:
@@ -270,9 +316,9 @@ def derive(run) -> dict:
         lambda r: "table dfh at 298.15 K" if h_defined.get(r) else "unknown (set to 0)")
     fits = fits[["species"] + [c for c in fits.columns if c not in ("species", "source_id")]]
     psegs = preferred_segments(preferred, records, segments, fit.segments, h_defined)
-    props = curated_properties(preferred, records, f["species"], funcs, tp)
     refs = element_references(f["species"])
     refs = refs[refs["species"].isin(set(preferred.dropna(subset=["preferred_record_id"])["species"]))]
+    props = curated_properties(preferred, records, f["species"], funcs, tp, refs=refs)
     derived = dict(preferred=preferred, fits=fits, preferred_segments=psegs, properties=props,
                    element_references=refs.reset_index(drop=True))
     run.extra["derived"] = derived
@@ -330,19 +376,66 @@ def write_release(run) -> None:
         con.close()
 
 
+def _sort_key(col: pd.Series) -> pd.Series:
+    """How :func:`_sorted` compares a column: text (object or string dtype) as text with
+    nulls as ""; anything else as it is."""
+    if col.dtype == object or str(col.dtype) in ("string", "str"):
+        return col.astype("string").fillna("")
+    return col
+
+
+def _strictly_ascending(key: pd.DataFrame) -> bool:
+    """True when every row of ``key`` is strictly after the previous one (compared column
+    by column, as ``sort_values`` orders them): the rows are in order and unique, and a
+    stable sort would not move any. False when unsure (nulls in a non-text column, types
+    that are not plain numbers or text)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    n = len(key)
+    if n < 2:
+        return True
+    open_ = np.ones(n - 1, dtype=bool)  # pairs whose order the columns so far leave open
+    for c in key.columns:
+        col = key[c]
+        if str(col.dtype) == "string":
+            arr = pa.array(col.array)
+            a, b = arr.slice(0, n - 1), arr.slice(1)
+            lt = pc.less(a, b).to_numpy(zero_copy_only=False)
+            eq = pc.equal(a, b).to_numpy(zero_copy_only=False)
+        elif isinstance(col.dtype, np.dtype) and col.dtype.kind in "biuf":
+            v = col.to_numpy()
+            if v.dtype.kind == "f" and np.isnan(v).any():
+                return False
+            lt, eq = v[:-1] < v[1:], v[:-1] == v[1:]
+        else:
+            return False
+        if (open_ & ~(lt | eq)).any():
+            return False
+        open_ &= eq
+        if not open_.any():
+            return True
+    return not open_.any()
+
+
 def _sorted(df: pd.DataFrame, keys: list[str] | None = None) -> pd.DataFrame:
     """Rows in a deterministic order: by ``keys`` when they are unique, else by ``keys`` then
     every other column (text columns compared as text, nulls first)."""
     if not len(df):
         return df.reset_index(drop=True)
+    if keys:
+        key = pd.DataFrame({c: _sort_key(df[c]) for c in keys}, index=df.index)
+        if _strictly_ascending(key):
+            return df.reset_index(drop=True)  # already in key order, key unique: sorting moves nothing
+        order = key.sort_values(keys, kind="stable", na_position="first").index
+        if _strictly_ascending(key.loc[order]):
+            return df.loc[order].reset_index(drop=True)  # the key is unique: this is the order
     if keys and not df.duplicated(keys).any():
         # a unique key orders the rows completely: no need to compare every column
         cols = list(keys)
     else:
         cols = list(dict.fromkeys((keys or []) + list(df.columns)))
-    key = pd.DataFrame({c: (df[c].astype("string").fillna("")
-                            if df[c].dtype == object or str(df[c].dtype) in ("string", "str") else df[c])
-                        for c in cols}, index=df.index)
+    key = pd.DataFrame({c: _sort_key(df[c]) for c in cols}, index=df.index)
     order = key.sort_values(cols, kind="stable", na_position="first").index
     return df.loc[order].reset_index(drop=True)
 

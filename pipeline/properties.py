@@ -52,15 +52,17 @@ def standard_grid(t_low_k, t_high_k) -> tuple[np.ndarray, np.ndarray]:
     hi = np.asarray(t_high_k, float)
     start = np.maximum(100.0, np.ceil(lo / 100.0 - 1e-9) * 100.0)
     stop = np.floor(hi / 100.0 + 1e-9) * 100.0
-    n = np.maximum(0, np.round((stop - start) / 100.0).astype(int) + 1)
-    owner = np.repeat(np.arange(len(lo)), n)
-    offset = np.arange(len(owner)) - np.repeat(np.cumsum(n) - n, n)
-    t = start[owner] + 100.0 * offset
+    n = np.maximum(0, np.round((stop - start) / 100.0).astype(int) + 1)   # multiples of 100 K
     has298 = in_range(lo, hi, T_REF)
-    owner = np.concatenate([owner, np.flatnonzero(has298)])
-    t = np.concatenate([t, np.full(int(has298.sum()), T_REF)])
-    order = np.lexsort((t, owner))
-    return owner[order], t[order]
+    m = n + has298                                                           # points per range
+    owner = np.repeat(np.arange(len(lo)), m)
+    pos = np.arange(len(owner)) - np.repeat(np.cumsum(m) - m, m)            # index within the range
+    # 298.15 K goes after the multiples of 100 K below it (start is a multiple of 100 K)
+    k298 = np.clip(np.ceil((T_REF - start) / 100.0), 0, n).astype(int)
+    at298 = has298[owner] & (pos == k298[owner])
+    offset = pos - (has298[owner] & (pos > k298[owner]))
+    t = np.where(at298, T_REF, start[owner] + 100.0 * offset)
+    return owner, t
 
 
 def in_range(t_low_k, t_high_k, t_k) -> np.ndarray:
@@ -70,31 +72,55 @@ def in_range(t_low_k, t_high_k, t_k) -> np.ndarray:
     return (t >= lo - 1e-9) & (t <= np.asarray(t_high_k, float) + 1e-9)
 
 
+def _stoich_lists(species: pd.DataFrame) -> list[tuple[list[str], list[float]]]:
+    """Per row of ``species``: element symbols and counts in the order of ``elements_json``
+    (zero counts left out), then the electron ``e`` with count −charge for an ion."""
+    texts = species["elements_json"].tolist()
+    charges = species["charge"].fillna(0).tolist()
+    is_text = [isinstance(ej, str) for ej in texts]
+    try:  # one parse of all the objects at once (each on its own if that does not fit)
+        parsed = json.loads("[" + ",".join(ej for ej, ok in zip(texts, is_text) if ok) + "]")
+        if len(parsed) != sum(is_text) or not all(isinstance(d, dict) for d in parsed):
+            raise ValueError("not one JSON object per species")
+        parsed = iter(parsed)
+        dicts = [next(parsed) if ok else {} for ok in is_text]
+    except ValueError:
+        dicts = [json.loads(ej) if ok else {} for ej, ok in zip(texts, is_text)]
+    out = []
+    for els, z in zip(dicts, charges):
+        names = [el for el, n in els.items() if n]
+        counts = [float(n) for n in els.values() if n]
+        if z:
+            names.append("e")
+            counts.append(-float(z))
+        out.append((names, counts))
+    return out
+
+
 def stoichiometry(species: pd.DataFrame) -> pd.DataFrame:
     """Long frame ``species, element, count`` from ``elements_json`` and ``charge``
     (the electron as element ``e`` with count −charge)."""
-    rows = []
-    for key, ej, z in zip(species["species"], species["elements_json"], species["charge"].fillna(0)):
-        els = json.loads(ej) if isinstance(ej, str) else {}
-        for el, n in els.items():
-            if n:
-                rows.append((key, el, float(n)))
-        if z:
-            rows.append((key, "e", -float(z)))
+    rows = [(key, el, n)
+            for key, (names, counts) in zip(species["species"].tolist(), _stoich_lists(species))
+            for el, n in zip(names, counts)]
     return pd.DataFrame(rows, columns=["species", "element", "count"])
 
 
 def element_references(species: pd.DataFrame) -> pd.DataFrame:
     """``element, species, atoms`` — the reference species of each element (module doc)."""
-    st = stoichiometry(species)
-    n_el = st.groupby("species")["element"].transform("size")
-    single = st[(n_el == 1) & (st["element"] != "e")]
+    keys_list = species["species"].tolist()
+    lists = _stoich_lists(species)
+    size: dict = {}  # stoichiometry entries per species key
+    for key, (names, _) in zip(keys_list, lists):
+        size[key] = size.get(key, 0) + len(names)
+    single = pd.DataFrame([(key, names[0], counts[0]) for key, (names, counts) in zip(keys_list, lists)
+                           if size[key] == 1 and names and names[0] != "e"], columns=["species", "element", "count"])
     flag = species.set_index("species")["reference_element"].astype("boolean").fillna(False).astype(bool)
     charge = species.set_index("species")["charge"].fillna(0)
     declared = single[single["species"].map(flag).fillna(False).astype(bool).to_numpy()
                       & (single["species"].map(charge) == 0).to_numpy()]
     refs = declared.rename(columns={"count": "atoms"})[["element", "species", "atoms"]]
-    keys = set(species["species"])
+    keys = set(keys_list)
     extra = []
     for el, n in GASEOUS_REFERENCE_ATOMICITY.items():
         key = f"{el}{n if n > 1 else ''}(g)"
@@ -119,13 +145,30 @@ def formation(rows: pd.DataFrame, species: pd.DataFrame, refs: pd.DataFrame, ref
     out = pd.DataFrame({"dfh_j_mol": np.nan, "dfg_j_mol": np.nan, "log_kf": np.nan}, index=rows.index)
     if not len(rows) or not len(refs):
         return out
-    st = stoichiometry(species[species["species"].isin(set(rows["species"]))])
-    covered = st.assign(ok=st["element"].isin(set(refs["element"]))).groupby("species")["ok"].all()
-    st = st[st["species"].map(covered).astype(bool)]
-    if not len(st):
+    code, keys = pd.factorize(rows["species"].to_numpy(dtype=object))
+    st = _Stoichiometry.of(species, np.asarray(keys, dtype=object), refs)
+    if not st.usable.any():
         return out
-    # reference functions on every temperature used, per element: the lowest G per atom
-    temps = np.unique(rows["t_k"].to_numpy(float))
+    t = rows["t_k"].to_numpy(float)
+    temps = np.unique(t)
+    ref_h, ref_g = reference_atoms(refs, ref_hg, temps, st.elements)
+    tc = np.searchsorted(temps, t)
+    # the summation rule (see _row_sums) depends on the row order and on NaN terms anywhere
+    in_order = pd.Index(rows.index[st.rows_usable(code)]).is_monotonic_increasing
+    plain = [in_order and not st.any_nan_term(code, tc, ref) for ref in (ref_h, ref_g)]
+    dfh, dfg, log_kf = st.formation(code, t, rows["h_j_mol"].to_numpy(float), rows["g_j_mol"].to_numpy(float),
+                                    tc, ref_h, ref_g, plain)
+    out["dfh_j_mol"], out["dfg_j_mol"], out["log_kf"] = dfh, dfg, log_kf
+    return out
+
+
+def reference_atoms(refs: pd.DataFrame, ref_hg: RefHG, temps: np.ndarray,
+                    elements: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """H and G per atom [J/mol] of each element's stable reference at each temperature.
+
+    Returns two (len(elements), len(temps)) arrays: the reference with the lowest G per atom
+    at T (ties: the first species key), NaN where no reference of the element covers T.
+    """
     rr = refs.loc[refs.index.repeat(len(temps))].reset_index(drop=True)
     rr["t_k"] = np.tile(temps, len(refs))
     h, g = ref_hg(rr["species"].to_numpy(dtype=object), rr["t_k"].to_numpy(float))
@@ -133,24 +176,137 @@ def formation(rows: pd.DataFrame, species: pd.DataFrame, refs: pd.DataFrame, ref
     rr["g_atom"] = g / rr["atoms"].to_numpy(float)
     rr = rr[np.isfinite(rr["g_atom"]) & np.isfinite(rr["h_atom"])]
     best = rr.sort_values(["element", "t_k", "g_atom", "species"], kind="stable").drop_duplicates(["element", "t_k"])
-    # Σ ν H_ref, Σ ν G_ref per (species, T); NaN when any element lacks a reference at T
-    r = rows[["species", "t_k"]].reset_index().merge(st, on="species")
-    r = r.merge(best[["element", "t_k", "h_atom", "g_atom"]], on=["element", "t_k"], how="left")
-    r["nh"] = r["count"] * r["h_atom"]
-    r["ng"] = r["count"] * r["g_atom"]
-    r["missing"] = r["nh"].isna() | r["ng"].isna()
-    grp = r.groupby("index")
-    missing = grp["missing"].any()
-    sh = grp["nh"].sum().mask(missing).reindex(rows.index)
-    sg = grp["ng"].sum().mask(missing).reindex(rows.index)
-    out["dfh_j_mol"] = rows["h_j_mol"].astype(float) - sh
-    out["dfg_j_mol"] = rows["g_j_mol"].astype(float) - sg
-    out["log_kf"] = -out["dfg_j_mol"] / (R * rows["t_k"].astype(float) * LN10)
-    return out
+    best = best[best["element"].isin(elements)]
+    ref_h = np.full((len(elements), len(temps)), np.nan)
+    ref_g = np.full((len(elements), len(temps)), np.nan)
+    el = pd.Index(elements).get_indexer(best["element"])
+    tc = np.searchsorted(temps, best["t_k"].to_numpy(float))
+    ref_h[el, tc] = best["h_atom"].to_numpy(float)
+    ref_g[el, tc] = best["g_atom"].to_numpy(float)
+    return ref_h, ref_g
+
+
+class _Stoichiometry:
+    """Element counts of a list of species as padded arrays: ``el[i, k]`` is the code (in
+    :attr:`elements`, the elements that have a reference species) of species i's k-th
+    element in ``elements_json`` order (the electron last), −1 past its last element;
+    ``count[i, k]`` its count. ``usable[i]``: the species is known, has at least one element
+    and every one of its elements has a reference (formation values defined)."""
+
+    def __init__(self, elements: list[str], el: np.ndarray, count: np.ndarray, usable: np.ndarray):
+        self.elements, self.el, self.count, self.usable = elements, el, count, usable
+
+    @classmethod
+    def of(cls, species: pd.DataFrame, keys: np.ndarray, refs: pd.DataFrame) -> "_Stoichiometry":
+        elements = sorted(set(refs["element"]))
+        code = {e: i for i, e in enumerate(elements)}
+        sp = species.drop_duplicates("species")
+        pos = pd.Index(sp["species"].to_numpy(dtype=object)).get_indexer(keys)
+        lists = _stoich_lists(sp.iloc[pos[pos >= 0]])
+        width = max((len(names) for names, _ in lists), default=0)
+        el = np.full((len(keys), width), -1, dtype=np.intp)
+        count = np.zeros((len(keys), width))
+        usable = np.zeros(len(keys), dtype=bool)
+        for i, (names, counts) in zip(np.flatnonzero(pos >= 0), lists):
+            if names and all(n in code for n in names):
+                usable[i] = True
+                el[i, :len(names)] = [code[n] for n in names]
+                count[i, :len(names)] = counts
+        return cls(elements, el, count, usable)
+
+    def rows_usable(self, code: np.ndarray) -> np.ndarray:
+        """Rows (species ``code`` into this list, −1 unknown) whose formation values are defined."""
+        ok = code >= 0
+        ok[ok] = self.usable[code[ok]]
+        return ok
+
+    def terms(self, code: np.ndarray, tc: np.ndarray, per_atom: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """ν_el · X_ref,el per row and element: (n, width) values and the mask of real terms
+        (a prefix of each row; none for a row whose species is not usable). ``tc``: the
+        rows' temperature codes; ``per_atom``: (element × T) from :func:`reference_atoms`."""
+        ok = self.rows_usable(code)
+        c = np.where(ok, code, 0)
+        if not len(self.el):
+            return np.zeros((len(code), 0)), np.zeros((len(code), 0), dtype=bool)
+        el = self.el[c]
+        has = (el >= 0) & ok[:, None]
+        with np.errstate(invalid="ignore", over="ignore"):
+            val = self.count[c] * per_atom[np.maximum(el, 0), tc[:, None]]
+        return val, has
+
+    def any_nan_term(self, code: np.ndarray, tc: np.ndarray, per_atom: np.ndarray) -> bool:
+        """Whether any real term of these rows is NaN (an element without a reference at T)."""
+        val, has = self.terms(code, tc, per_atom)
+        return bool((has & np.isnan(val)).any())
+
+    def formation(self, code: np.ndarray, t: np.ndarray, h: np.ndarray, g: np.ndarray, tc: np.ndarray,
+                  ref_h: np.ndarray, ref_g: np.ndarray, plain: list[bool]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+        """ΔfH, ΔfG [J/mol], log Kf [1] of rows (species ``code`` into this list, −1 unknown;
+        T [K] with codes ``tc``; H, G [J/mol]); ``ref_h``, ``ref_g`` from :func:`reference_atoms`;
+        ``plain`` (for H, for G): the summation rule of :func:`_row_sums`."""
+        val, has = self.terms(code, tc, ref_h)
+        sh, bad_h = _row_sums(val, has, plain[0])
+        val, has = self.terms(code, tc, ref_g)
+        sg, bad_g = _row_sums(val, has, plain[1])
+        del val, has
+        missing = ~self.rows_usable(code) | bad_h | bad_g
+        sh[missing] = np.nan
+        sg[missing] = np.nan
+        with np.errstate(invalid="ignore", divide="ignore"):
+            dfh = h - sh
+            dfg = g - sg
+            log_kf = -dfg / (R * t * LN10)
+        log_kf[np.isnan(log_kf)] = np.nan  # one NaN (the negation above sets its sign bit)
+        return dfh, dfg, log_kf
+
+
+def _row_sums(val: np.ndarray, has: np.ndarray, plain: bool) -> tuple[np.ndarray, np.ndarray]:
+    """Σ_k val[i, k] over each row's real terms (in element order), and whether a term is NaN.
+
+    The arithmetic is that of pandas' grouped sum over the long (row × element) frame, which
+    is how these sums were computed before, so the table's values stay the same to the last
+    bit: when every term of the whole frame is a number and the rows come in order
+    (``plain``), pandas adds each row with ``numpy.add.reduceat`` (the first term plus numpy's
+    pairwise sum of the others), else with a compensated (Kahan) sum term by term, NaN terms
+    skipped (such rows are set to NaN by the caller).
+    """
+    n = len(val)
+    bad = (has & np.isnan(val)).any(axis=1)
+    total = np.zeros(n)
+    if plain:
+        n_terms = has.sum(axis=1)
+        rows = n_terms > 0
+        if rows.any():
+            starts = (np.cumsum(n_terms) - n_terms)[rows]
+            total[rows] = np.add.reduceat(val[has], starts)
+        return total, bad
+    comp = np.zeros(n)
+    with np.errstate(invalid="ignore", over="ignore"):
+        for k in range(val.shape[1]):
+            use = has[:, k] & ~np.isnan(val[:, k])
+            if not has[:, k].any():
+                break
+            y = val[:, k] - comp
+            s = total + y
+            c = (s - total) - y
+            c[~np.isfinite(c)] = 0.0  # an infinite term: keep the infinite sum (as pandas does)
+            total = np.where(use, s, total)
+            comp = np.where(use, c, comp)
+    return total, bad
+
+
+#: grid rows evaluated at once (bounds the temporaries of the evaluation and formation)
+BLOCK_ROWS = 1 << 19
+
+
+def _text_take(col: pd.Series, idx: np.ndarray):
+    """``col`` (text) at positions ``idx`` as a ``str`` array, without Python objects."""
+    return col.astype("str").array.take(idx)
 
 
 def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: pd.DataFrame,
-                       functions, table_points: pd.DataFrame | None = None) -> pd.DataFrame:
+                       functions, table_points: pd.DataFrame | None = None,
+                       refs: pd.DataFrame | None = None) -> pd.DataFrame:
     """The ``properties`` table: every species' preferred record on its standard grid.
 
     Parameters
@@ -160,20 +316,28 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
     species : species table (elements_json, charge, reference_element).
     functions : :class:`~pipeline.functions.RecordFunctions` over the records.
     table_points : tabulated rows, for ΔfH/ΔfG/log Kf a table gives where H is not absolute.
+    refs : :func:`element_references` of ``species`` when already computed.
+
+    Rows are sorted by species and T. The grid is evaluated in blocks of
+    :data:`BLOCK_ROWS` rows; formation values come from each species' element counts (padded
+    arrays) and a per-element × per-T table of the references, without long-format merges.
     """
     pr = preferred.dropna(subset=["preferred_record_id"]).merge(
         records[["record_id", "t_low_k", "t_high_k"]], left_on="preferred_record_id", right_on="record_id")
     if not len(pr):
         return pd.DataFrame(columns=list(PROPERTY_COLUMNS))
+    presorted = not pr["species"].duplicated().any()
+    if presorted:  # one record per species: the grid comes out in (species, T) order
+        pr = pr.iloc[np.argsort(pr["species"].to_numpy(dtype=object), kind="stable")].reset_index(drop=True)
     owner, t = standard_grid(pr["t_low_k"].to_numpy(float), pr["t_high_k"].to_numpy(float))
-    rid = pr["record_id"].to_numpy(dtype=object)[owner]
-    v = functions.evaluate(rid, t)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        gef = v.s - v.h_minus_h298 / t
-    rows = pd.DataFrame({"species": pr["species"].to_numpy(dtype=object)[owner], "record_id": rid, "t_k": t,
-                         "cp_j_mol_k": v.cp, "h_j_mol": v.h, "s_j_mol_k": v.s, "g_j_mol": v.g,
-                         "h_minus_h298_j_mol": v.h_minus_h298, "gef_j_mol_k": gef})
-    refs = element_references(species)
+    rid_pr = pr["record_id"].to_numpy(dtype=object)
+    n = len(t)
+    names = ("cp_j_mol_k", "h_j_mol", "s_j_mol_k", "g_j_mol", "h_minus_h298_j_mol", "dfh_j_mol", "dfg_j_mol",
+             "log_kf")
+    col = {c: np.full(n, np.nan) for c in names}
+
+    if refs is None:
+        refs = element_references(species)
     ref_rec = preferred.set_index("species")["preferred_record_id"]
     refs = refs[refs["species"].isin(ref_rec.dropna().index)]
     rng = records.set_index("record_id")[["t_low_k", "t_high_k"]]
@@ -184,14 +348,52 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
         ok = in_range(rng.loc[rids, "t_low_k"].to_numpy(float), rng.loc[rids, "t_high_k"].to_numpy(float), temps)
         return np.where(ok, vv.h, np.nan), np.where(ok, vv.g, np.nan)
 
-    form = formation(rows, species, refs, ref_hg)
-    rows = pd.concat([rows, form], axis=1)
+    st = _Stoichiometry.of(species, pr["species"].to_numpy(dtype=object), refs) if len(refs) else None
+    with_formation = st is not None and n > 0 and bool(st.usable.any())
+    if with_formation:
+        temps = np.unique(t)
+        tc = np.searchsorted(temps, t)
+        ref_h, ref_g = reference_atoms(refs, ref_hg, temps, st.elements)
+        # rows come in order; the summation rule depends on NaN terms anywhere (_row_sums)
+        plain = [not any(st.any_nan_term(owner[i:i + BLOCK_ROWS], tc[i:i + BLOCK_ROWS], ref)
+                         for i in range(0, n, BLOCK_ROWS)) for ref in (ref_h, ref_g)]
+    for i in range(0, n, BLOCK_ROWS):
+        j = min(n, i + BLOCK_ROWS)
+        v = functions.evaluate(rid_pr[owner[i:j]], t[i:j])
+        for c, a in zip(names, (v.cp, v.h, v.s, v.g, v.h_minus_h298)):
+            col[c][i:j] = a
+        if with_formation:
+            form = st.formation(owner[i:j], t[i:j], v.h, v.g, tc[i:j], ref_h, ref_g, plain)
+            for c, a in zip(("dfh_j_mol", "dfg_j_mol", "log_kf"), form):
+                col[c][i:j] = a
+    with np.errstate(invalid="ignore", divide="ignore"):
+        gef = col["s_j_mol_k"] - col["h_minus_h298_j_mol"] / t
     if table_points is not None and len(table_points):
-        tp = table_points[["record_id", "t_k", "dfh_j_mol", "dfg_j_mol", "log_kf"]]
-        m = rows[["record_id", "t_k"]].reset_index().merge(tp, on=["record_id", "t_k"], how="inner")
-        m = m.drop_duplicates("index").set_index("index")
-        for c in ("dfh_j_mol", "dfg_j_mol", "log_kf"):
-            fill = m[c].reindex(rows.index)
-            rows[c] = rows[c].where(rows[c].notna(), fill)
-    rows = rows.sort_values(["species", "t_k"], kind="stable").reset_index(drop=True)
+        _fill_from_tables(col, table_points, pr["record_id"], rid_pr, owner, t)
+    rows = pd.DataFrame({"species": _text_take(pr["species"], owner), "record_id": _text_take(pr["record_id"], owner),
+                         "t_k": t, **{c: col.pop(c) for c in names[:5]}, "gef_j_mol_k": gef,
+                         **{c: col.pop(c) for c in names[5:]}}, copy=False)
+    if not presorted:
+        rows = rows.sort_values(["species", "t_k"], kind="stable").reset_index(drop=True)
     return rows[list(PROPERTY_COLUMNS)]
+
+
+def _fill_from_tables(col: dict, table_points: pd.DataFrame, pr_rid: pd.Series, rid_pr: np.ndarray,
+                      owner: np.ndarray, t: np.ndarray) -> None:
+    """Where a formation value is NaN and the record is a table with a row at that T, take
+    the table's value (its first row at that T)."""
+    from .functions import member
+
+    tp = table_points[["record_id", "t_k", "dfh_j_mol", "dfg_j_mol", "log_kf"]].drop_duplicates(["record_id", "t_k"])
+    tabulated = member(pr_rid, tp["record_id"].dropna().unique())
+    sel = np.flatnonzero(tabulated[owner])
+    if not len(sel):
+        return
+    m = pd.DataFrame({"record_id": rid_pr[owner[sel]], "t_k": t[sel], "_row": sel}).merge(
+        tp, on=["record_id", "t_k"], how="inner")
+    pos = m["_row"].to_numpy()
+    for c in ("dfh_j_mol", "dfg_j_mol", "log_kf"):
+        fill = m[c].to_numpy(dtype=float, na_value=np.nan)
+        target = col[c]
+        empty = np.isnan(target[pos])
+        target[pos[empty]] = fill[empty]

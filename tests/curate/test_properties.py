@@ -67,3 +67,93 @@ def test_formation_needs_every_element_and_the_electron_for_ions():
     assert np.isnan(f["dfh_j_mol"].iloc[0])                          # no reference for O
     # H+ : ½ H2 − e-  →  ΔfG = G − (½(−1000)·2/2 ... per atom: G_H2/2 = −500) + (−1000) for −1 electron
     assert f["dfg_j_mol"].iloc[1] == pytest.approx(1500000.0 - (-500.0) - (-1.0) * (-1000.0))
+
+
+def test_standard_grid_equals_its_definition_on_many_ranges():
+    """The grid built by position equals the definition written out range by range: the
+    multiples of 100 K from max(100 K, lower bound rounded up) to the upper bound, plus
+    298.15 K when the range reaches it (5 K allowance), in ascending order."""
+    rng = np.random.default_rng(7)
+    lo = np.concatenate([rng.choice([0.0, 50.0, 100.0, 200.0, 250.0, 293.15, 295.0, 298.15, 300.0, 303.15, 1000.0],
+                                    400), rng.uniform(0.0, 2000.0, 400)])
+    hi = lo + np.concatenate([rng.choice([0.0, 0.01, 5.0, 48.0, 100.0, 300.0, 5000.0], 400), rng.uniform(0, 3000, 400)])
+    owner, t = standard_grid(lo, hi)
+    for i in range(len(lo)):
+        start = max(100.0, np.ceil(lo[i] / 100.0 - 1e-9) * 100.0)
+        want = [x for x in np.arange(start, hi[i] + 1e-6, 100.0) if x <= hi[i] + 1e-9]
+        if lo[i] - 5.0 - 1e-9 <= T_REF <= hi[i] + 1e-9:
+            want.append(T_REF)
+        assert t[owner == i].tolist() == sorted(want), (lo[i], hi[i])
+    assert np.all(np.diff(owner) >= 0)
+
+
+def _long_frame_sums(rows, sp, refs, per_atom):
+    """Σ ν_el H_ref,el per row the direct way: a long (row × element) frame merged with the
+    per-atom reference values and summed per row with pandas (NaN where a term is NaN)."""
+    st = pd.DataFrame([(k, el, float(n)) for k, ej in zip(sp["species"], sp["elements_json"])
+                       for el, n in json.loads(ej).items()], columns=["species", "element", "count"])
+    r = rows[["species", "t_k"]].reset_index().merge(st, on="species")
+    r = r.merge(per_atom, on=["element", "t_k"], how="left")
+    r["nh"] = r["count"] * r["h_atom"]
+    missing = r.groupby("index")["nh"].agg(lambda x: x.isna().any())
+    return r.groupby("index")["nh"].sum().mask(missing).reindex(rows.index)
+
+
+@pytest.mark.parametrize("gap", [False, True])
+def test_formation_sums_like_the_long_frame(gap):
+    """Σ_el ν_el H_ref,el of many species with 3–10 elements equals, bit for bit, the sum of
+    the long (row × element) frame with pandas — the computation the properties table used
+    before, so its contents do not change. pandas adds with numpy's pairwise
+    ``add.reduceat`` when every term is a number and with a compensated sum when some are
+    NaN (``gap``: one element has no reference at one temperature); the data make the two
+    rules disagree somewhere, so the test tells them apart."""
+    from pipeline.properties import _row_sums, _Stoichiometry
+
+    rng = np.random.default_rng(11)
+    els = ["C", "H", "N", "O", "S", "P", "F", "Cl", "Br", "I"]
+    sp_rows = [(f"{el}(ref)", {el: 1}, 0, True) for el in els]
+    for i in range(400):
+        k = int(rng.integers(3, len(els) + 1))
+        sp_rows.append((f"X{i}(g)", {el: int(rng.integers(1, 40)) for el in rng.permutation(els)[:k]}, 0, False))
+    sp = _species(sp_rows)
+    refs = element_references(sp)
+    temps = np.array([T_REF, 500.0, 1000.0, 2000.0])
+    h_atom = {el: rng.uniform(-3e5, 3e5, len(temps)) + rng.uniform(0, 1, len(temps)) / 3 for el in els}
+    if gap:
+        h_atom["S"][2] = np.nan
+
+    def ref_hg(keys, t):
+        h = np.array([h_atom[k.split("(")[0]][np.searchsorted(temps, x)] for k, x in zip(keys, np.asarray(t, float))])
+        return h, h - 1000.0
+
+    keys = [r[0] for r in sp_rows[len(els):]]
+    rows = pd.DataFrame({"species": np.repeat(keys, len(temps)), "t_k": np.tile(temps, len(keys)),
+                         "h_j_mol": 0.0, "g_j_mol": 0.0}, index=np.arange(len(keys) * len(temps)) * 3 + 1)
+    f = formation(rows, sp, refs, ref_hg)
+    per_atom = pd.DataFrame([(el, t, h_atom[el][j]) for el in els for j, t in enumerate(temps)
+                             if np.isfinite(h_atom[el][j])], columns=["element", "t_k", "h_atom"])
+    want = -_long_frame_sums(rows, sp, refs, per_atom).to_numpy()
+    np.testing.assert_array_equal(f["dfh_j_mol"].to_numpy(), want)
+    assert np.isnan(want).any() == gap
+    # the other summation rule gives different values here
+    st = _Stoichiometry.of(sp, np.array(keys, dtype=object), refs)
+    table = np.array([h_atom[el] for el in st.elements])
+    val, has = st.terms(np.repeat(np.arange(len(keys)), len(temps)), np.tile(np.arange(len(temps)), len(keys)), table)
+    other, bad = _row_sums(val, has, plain=gap)
+    assert (-other[~bad] != want[~bad]).any()
+
+
+def test_properties_do_not_depend_on_the_evaluation_block_size(release, monkeypatch):
+    """The grid is evaluated in blocks; blocks that split a species' grid give the same table."""
+    import pipeline.properties as props
+    from pipeline.functions import RecordFunctions
+
+    run, _ = release
+    f = run.frames
+    whole = run.extra["derived"]["properties"]
+    monkeypatch.setattr(props, "BLOCK_ROWS", 7)
+    pref = run.extra["derived"]["preferred"]
+    blocks = props.curated_properties(pref, f["records"], f["species"],
+                                      RecordFunctions(f["records"], f["segments"], f["table_points"]), f["table_points"])
+    assert len(whole) > 7 and whole["dfh_j_mol"].notna().any()
+    pd.testing.assert_frame_equal(blocks, whole, check_exact=True)
