@@ -277,6 +277,29 @@ def row_components(row_species: Sequence[Sequence], n_rows: int) -> np.ndarray:
     return lab[:n_rows]
 
 
+def _dense_rank(x: np.ndarray) -> np.ndarray:
+    """Rank of each value of ``x`` (non-negative integers) among its distinct values: the
+    inverse of ``np.unique(x, return_inverse=True)``, by counting (numpy's unique hashes or
+    sorts, many times slower on long arrays)."""
+    x = np.asarray(x, dtype=np.int64)
+    if not len(x):
+        return x
+    present = np.bincount(x) > 0
+    return (np.cumsum(present) - 1)[x]
+
+
+def term_components(row: np.ndarray, key: np.ndarray, n_rows: int) -> np.ndarray:
+    """Connected components of reactions linked by shared species, from long arrays: term k
+    of reaction ``row[k]`` names species code ``key[k]`` (integers). Same labels as
+    :func:`row_components` (a component's label is its rank by its first reaction)."""
+    row = np.asarray(row, dtype=np.int64)
+    kc = _dense_rank(np.asarray(key, dtype=np.int64))
+    n = n_rows + (int(kc.max()) + 1 if len(kc) else 0)
+    a = sp.coo_matrix((np.ones(len(row)), (row, n_rows + kc)), shape=(n, n))
+    _, lab = connected_components(a, directed=False)
+    return lab[:n_rows]
+
+
 # ------------------------------------------------------------------------ reconciliation
 
 #: Components with at most this many unknown species are solved exactly (dense SVD);
@@ -294,6 +317,17 @@ N_CANDIDATES = 12
 
 #: A leverage within this of 1 counts as h = 1 (the datum alone fixes a combination).
 H_ONE = 1e-8
+
+#: Iterative path: an estimated 1 − h between ``H_ONE`` and this is checked by an exact solve.
+_H_GRAY = 1e-5
+
+#: Iterative path: data set aside in one step that may need a solve of their own for the
+#: Woodbury update (``_Component._downdate``); beyond, the final estimates use fresh probes.
+_DOWNDATE_SOLVES = 8
+
+#: Iterative path: up to this many data set aside, their prediction variances ("after" z)
+#: are exact (one solve each, most of them kept from the loop); beyond, the probes' estimate.
+_EXACT_PRED_MAX = 64
 
 
 @dataclass
@@ -363,19 +397,28 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
     column-scaled whitened design matrix (rank with the LAPACK/numpy tolerance; variances
     from the pseudo-inverse; leverages from the left singular vectors; a species is
     undetermined when its unit vector is not in the row space). Larger components
-    (scales to 1e5 species): normal equations M = JᵀJ (sparse) solved by Jacobi-
-    preconditioned conjugate gradients, many right-hand sides at once; undetermined
+    (scales to 1e5 species): normal equations M = JᵀJ (sparse) solved by conjugate
+    gradients, many right-hand sides at once, preconditioned by the exact inverse of M on
+    small groups of strongly coupled species (:func:`block_preconditioner`; a sparse
+    direct factorisation fills in far too much on a random-like network); undetermined
     species are the support of the null space of M, found by projecting random vectors
     onto it (exact with probability 1, to the solver tolerance); variances and 1 − h by
     the randomised estimator of refs. 3 with ``n_probes`` Gaussian probes G:
     Y = M⁺JᵀG gives var(x̂_i) ≈ mean_s Y_is² and 1 − h_k ≈ mean_s ((G − JY)_ks)², since
     Cov(Y) = M⁺ and G − JY = (I − H)G with I − H a projection (relative standard error
-    √(2/s)); in each loop step the leverages of the ``N_CANDIDATES`` most suspicious data
-    are computed exactly (one block solve), the others keep their estimates (about 9 %
-    on t), and the data beyond ``z_max`` that have the largest |t| within two steps of
-    the network are set aside together (gross errors far apart do not disturb each
-    other's residuals; see ``_Component.worst``). The prediction variance of a set-aside
-    datum (its "after" z) uses the same probes. Measured on 1e5 species: bench/network_scale.py.
+    √(2/s)); a datum holding a species no other datum holds has h = 1 exactly, and an
+    estimate within ``_H_GRAY`` of 1 is checked by an exact solve. In each loop step the
+    leverages of the ``N_CANDIDATES`` most suspicious data are computed exactly (one block
+    solve), the others keep their first estimates (about 9 % on t), and the data beyond
+    ``z_max`` that have the largest |t| within two steps of the network are set aside
+    together (gross errors far apart do not disturb each other's residuals; see
+    ``_Component.worst``). Setting data aside updates the probe solutions, the exact
+    solves and the fit by the Sherman–Morrison–Woodbury identity (``_Component._downdate``)
+    instead of solving again: the final variances and leverages are the same probes'
+    estimate for the data kept (fresh probes when a step sets many data aside at once),
+    and the prediction variance of a set-aside datum (its "after" z) is exact (up to
+    ``_EXACT_PRED_MAX`` of them; beyond, the probes' estimate). Measured on 1e5 species:
+    bench/network_scale.py.
 
     Parameters
     ----------
@@ -408,7 +451,7 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
     rng = np.random.default_rng(seed)
     order_m = np.argsort(meas_comp, kind="stable")
     order_n = np.argsort(sp_comp, kind="stable")
-    comps = np.unique(lab)
+    comps = np.flatnonzero(np.bincount(lab)) if len(lab) else np.zeros(0, dtype=np.int64)
     m_start = np.searchsorted(meas_comp[order_m], comps)
     m_end = np.searchsorted(meas_comp[order_m], comps, side="right")
     n_start = np.searchsorted(sp_comp[order_n], comps)
@@ -482,7 +525,17 @@ class _Component:
         self.events: list[SetAside] = []
         self.stopped_early = ""
         self._null_info = None   # (determined, null_dim): invariant under removals with h < 1
+        self._prec = None        # iterative path: block preconditioner (block_preconditioner) …
+        self._groups = None      # … and its groups of species
         self._probes = None      # iterative path: (var per species, _RowMap of 1 − h per datum, Y)
+        # iterative path, kept up to date through removals (see _downdate): the probe vectors
+        # G (rows: the data in _gkeys) and their solutions Y = M⁺JᵀG, and exact solutions
+        # M⁺j_k of single data rows (key: measurement k, or m + i for the prior of species i)
+        self._G = self._Y = self._gkeys = None
+        self._solved: dict[int, np.ndarray] = {}
+        self._pending: list[int] = []
+        self._aside: list[int] = []          # keys of the data set aside so far
+        self._aside_exact = True             # their exact prediction variances are affordable
         self.x = np.zeros(self.n)
 
     def _system(self):
@@ -527,24 +580,138 @@ class _Component:
     # ---- iterative path
     def _fit_iterative(self) -> None:
         J = self.J
+        removed = bool(self._pending) or self._prec is None
+        if self._pending:
+            self._downdate()     # while self.M is still the matrix that held the removed data
         self.M = (J.T @ J).tocsr()
-        dg = self.M.diagonal()
-        self.dinv = np.where(dg > 0, 1.0 / np.where(dg > 0, dg, 1.0), 0.0)
+        if self._prec is None:
+            self._groups = _aggregates(self.M, J)
+        if removed:              # the groups stay; their blocks follow the data kept
+            self._prec = _block_inverse(self.M, self._groups)
+        x0 = self.x if np.any(self.x) else np.where(np.isfinite(self.p), self.p, 0.0)
+        rhs = (J.T @ self.b)[:, None]
         if self._null_info is None:
-            self._null_info = self._null_space()
+            # first fit: x and the three null-space projections of _null_space in one block solve
+            Z = self.rng.standard_normal((self.n, 3))
+            X = block_pcg(self.M, np.hstack([rhs, self.M @ Z]), self._prec,
+                          x0=np.hstack([x0[:, None], np.zeros((self.n, 3))]), rtol=[1e-11, 1e-13, 1e-13, 1e-13])
+            self.x = X[:, 0]
+            self._null_info = self._null_space(Z, X[:, 1:])
+        else:
+            self.x = block_pcg(self.M, rhs, self._prec, x0=x0[:, None])[:, 0]
         self.det, null_dim = self._null_info
         self.rank = self.n - null_dim
-        x0 = self.x if np.any(self.x) else np.where(np.isfinite(self.p), self.p, 0.0)
-        self.x = block_pcg(self.M, (J.T @ self.b)[:, None], self.dinv, x0=x0[:, None])[:, 0]
         if self._probes is None:
             self._probes = self._probe()
         self.var = self._probes[0]
-        self.h = np.clip(1.0 - self._probes[1].at(self.im, self.ip), 0.0, 1.0)
+        self.h = self._leverage_estimates()
 
-    def _null_space(self):
-        """Undetermined species (the support of null(M)) and dim null(M)."""
-        Z = self.rng.standard_normal((self.n, 3))
-        N = Z - block_pcg(self.M, self.M @ Z, self.dinv, rtol=1e-13)
+    def _leverage_estimates(self) -> np.ndarray:
+        """h of the active data from the probes' 1 − h; exactly 1 for a datum holding a
+        species that no other active datum holds (it alone fixes that species: its residual
+        is zero whatever its value); exact (one solve) where the estimated 1 − h is within
+        ``_H_GRAY`` of ``H_ONE`` — h = 1 gives 1 − h = 0 up to the solver's tolerance, h < 1
+        gives 1 − h far above it — so that "untestable" does not depend on solver noise."""
+        om = self._probes[1].at(self.im, self.ip)
+        h = np.clip(1.0 - om, 0.0, 1.0)
+        J = self.J
+        nz = J.data != 0
+        cnt = np.bincount(J.indices[nz], minlength=self.n)
+        rows = np.repeat(np.arange(J.shape[0]), np.diff(J.indptr))[nz]
+        alone = np.bincount(rows, weights=(cnt[J.indices[nz]] == 1), minlength=J.shape[0]) > 0
+        h = np.where(alone, 1.0, h)
+        gray = np.flatnonzero(~alone & (om > H_ONE) & (om < _H_GRAY))
+        if len(gray):
+            h[gray] = self._exact_h(gray)
+        return h
+
+    def _keys(self, rows: np.ndarray) -> np.ndarray:
+        """Data keys of rows of the current J: measurement k → k, prior of species i → m + i."""
+        rows = np.asarray(rows, dtype=np.int64)
+        nm = len(self.im)
+        keys = np.empty(len(rows), dtype=np.int64)
+        mm = rows < nm
+        keys[mm] = self.im[rows[mm]]
+        keys[~mm] = self.m + self.ip[rows[~mm] - nm]
+        return keys
+
+    def _rows_of(self, keys) -> sp.csr_matrix:
+        """Whitened design rows of data ``keys`` (active or not), one sparse row each."""
+        out = []
+        for k in keys:
+            if k < self.m:
+                out.append(self.A[k] / self.u[k])
+            else:
+                i = k - self.m
+                out.append(sp.csr_matrix(([1.0 / self.ps[i]], ([0], [i])), shape=(1, self.n)))
+        return sp.vstack(out, format="csr") if out else sp.csr_matrix((0, self.n))
+
+    def _solve_rows(self, keys) -> np.ndarray:
+        """M⁺j_k for data ``keys`` (n × len(keys)) with the current M: cached, else solved."""
+        need = [k for k in dict.fromkeys(int(k) for k in keys) if k not in self._solved]
+        if need:
+            Bn = self._rows_of(need).T.toarray()
+            # h = j·M⁺j converges as the square of the error in M-norm: a residual of 1e-4
+            # gives h to about 1e-9 (measured on the 1e5-species network), far inside what
+            # the |t| > 3 test can resolve
+            Yn = block_pcg(self.M, Bn, self._prec, rtol=1e-4)
+            for j, k in enumerate(need):
+                self._solved[k] = Yn[:, j]
+        return np.column_stack([self._solved[int(k)] for k in keys]) if len(keys) else np.zeros((self.n, 0))
+
+    def _downdate(self) -> None:
+        """Remove the pending data from the probe solutions, the kept solves and x.
+
+        With M' = M − J_Rᵀ J_R (the rows R set aside), Z = M⁺J_Rᵀ and S = I − J_R Z (the
+        identity minus the hat matrix on R, definite when every datum of R has h < 1, so
+        the rank is unchanged), the Sherman–Morrison–Woodbury identity gives
+        M'⁺ = M⁺ + Z S⁻¹ Zᵀ on the row space, hence for the probes (the same vectors G
+        without their rows of R) Y' = M'⁺(JᵀG − J_RᵀG_R) = Y + Z S⁻¹ (J_R Y − G_R), for a
+        kept solve y' = y + Z S⁻¹ J_R y (for the data of R themselves this is Z S⁻¹, kept
+        for their prediction variances in :meth:`final`), and for the fit
+        x' = x + Z S⁻¹ (J_R x − b_R) (the warm start of the refit). Z comes from the exact
+        leverages of the step that chose R. When more than ``_DOWNDATE_SOLVES`` rows of R
+        were not solved there, or S is nearly singular, nothing is updated: the final
+        estimates then use fresh probes, and x its previous value as warm start.
+        """
+        R = list(dict.fromkeys(self._pending))
+        self._pending = []
+        self._aside.extend(R)
+        if len(self._aside) > _EXACT_PRED_MAX:   # too many for exact prediction variances
+            self._aside_exact = False
+        uncached = [k for k in R if k not in self._solved]
+        S = None
+        if len(uncached) <= _DOWNDATE_SOLVES:
+            JR = self._rows_of(R)
+            Z = self._solve_rows(R)
+            S = np.eye(len(R)) - JR @ Z
+        if S is None or np.linalg.eigvalsh(0.5 * (S + S.T)).min() < 1e-6:
+            self._solved = {}
+            self._G = self._Y = self._gkeys = None
+            return
+        Sinv = np.linalg.inv(S)
+        # keep only the solves of set-aside data (prediction variances); candidates are re-solved
+        keys = [k for k in self._aside if k in self._solved] if self._aside_exact else []
+        if keys:
+            C = np.column_stack([self._solved[k] for k in keys])
+            C += Z @ (Sinv @ (JR @ C))
+            self._solved = {k: C[:, j] for j, k in enumerate(keys)}
+        else:
+            self._solved = {}
+        if self._Y is not None:
+            pos = np.searchsorted(self._gkeys, R)
+            self._Y += Z @ (Sinv @ (JR @ self._Y - self._G[pos]))
+            keep = np.ones(len(self._gkeys), bool)
+            keep[pos] = False
+            self._G, self._gkeys = self._G[keep], self._gkeys[keep]
+        bR = np.array([self.v[k] / self.u[k] if k < self.m else self.p[k - self.m] / self.ps[k - self.m]
+                       for k in R])
+        self.x = self.x + Z @ (Sinv @ (JR @ self.x - bR))
+
+    def _null_space(self, Z: np.ndarray, MpMZ: np.ndarray):
+        """Undetermined species (the support of null(M)) and dim null(M), from random Z and
+        the solutions of M X = M Z (Z − X lies in null(M))."""
+        N = Z - MpMZ
         undet = np.abs(N).max(axis=1) > 1e-4 * np.abs(Z).max()
         nu = int(undet.sum())
         if nu == 0:
@@ -558,34 +725,44 @@ class _Component:
             return ~undet, nu - rank
         # very large undetermined sets: the dimension seen by 200 random projections (a lower bound)
         Z = self.rng.standard_normal((self.n, 200))
-        N = Z - block_pcg(self.M, self.M @ Z, self.dinv, rtol=1e-13)
+        N = Z - block_pcg(self.M, self.M @ Z, self._prec, rtol=1e-13)
         s = np.linalg.svd(N[idx], compute_uv=False)
         return ~undet, int((s > 1e-6 * s.max()).sum())
 
-    def _probe(self):
-        G = self.rng.standard_normal((self.J.shape[0], self.n_probes))
-        Y = block_pcg(self.M, self.J.T @ G, self.dinv, rtol=1e-5)
+    def _probe(self, fresh: bool = True):
+        """Randomised variances and 1 − h (see :func:`reconcile`): new probe vectors G and
+        Y = M⁺JᵀG, or (``fresh=False``) the current G and Y kept up to date by _downdate."""
+        if fresh or self._Y is None or not np.array_equal(self._gkeys, self._keys(np.arange(self.J.shape[0]))):
+            self._G = self.rng.standard_normal((self.J.shape[0], self.n_probes))
+            self._Y = block_pcg(self.M, self.J.T @ self._G, self._prec, rtol=1e-5)
+            self._gkeys = self._keys(np.arange(self.J.shape[0]))
+        G, Y = self._G, self._Y
         var = (Y ** 2).mean(axis=1)
         one_minus_h = ((G - self.J @ Y) ** 2).mean(axis=1)
         return var, _RowMap(self.m, self.n, self.im, self.ip, one_minus_h), Y
 
     def _exact_h(self, rows: np.ndarray) -> np.ndarray:
-        B = self.J[rows].T.toarray()
-        # 1e-6: h to ~1e-6, far inside what the |t| > 3 test can resolve
-        Y = block_pcg(self.M, B, self.dinv, rtol=1e-6)
-        return np.clip((B * Y).sum(axis=0), 0.0, 1.0)
+        B = self.J[rows]
+        Y = self._solve_rows(self._keys(rows))
+        return np.clip(np.asarray((B.multiply(Y.T)).sum(axis=1)).ravel(), 0.0, 1.0)
 
-    def _pred_vars(self, Ak) -> np.ndarray:
-        """a·Cov(x̂)·a for each row a of sparse ``Ak`` (combinations the fit determines).
+    def _pred_vars(self, Ak, keys: np.ndarray) -> np.ndarray:
+        """a·Cov(x̂)·a for each row a of sparse ``Ak`` (data ``keys``; combinations the fit determines).
 
-        Exact path: ‖(a∘d) V S⁻¹‖². Iterative path: the randomised estimate
-        mean_s (a·Y_s)², since Cov(Y_s) = M⁺ for the probe solutions Y = M⁺JᵀG."""
+        Exact path: ‖(a∘d) V S⁻¹‖². Iterative path: a·M⁺a = σ² j·(M⁺j) with the
+        whitened row j = a/σ, from the solves kept through the loop (:meth:`_downdate`)
+        or one block solve; when more than ``_EXACT_PRED_MAX`` data were set aside, the randomised
+        estimate mean_s (a·Y_s)² from the probe solutions Y = M⁺JᵀG (Cov(Y_s) = M⁺)."""
         if not self.n:
             return np.zeros(Ak.shape[0])
         if self.dense:
             W = (Ak.toarray() * self._d) @ self._VrS
             return (W ** 2).sum(axis=1)
-        return ((Ak @ self._probes[2]) ** 2).mean(axis=1)
+        if not self._aside_exact:     # many data set aside: the probes' estimate mean_s (a·Y_s)²
+            return ((Ak @ self._probes[2]) ** 2).mean(axis=1)
+        Y = self._solve_rows(keys)
+        sig2 = np.array([self.u[k] ** 2 if k < self.m else self.ps[k - self.m] ** 2 for k in keys])
+        return sig2 * np.asarray(self._rows_of(keys).multiply(Y.T).sum(axis=1)).ravel()
 
     # ---- the loop's choice
     def worst(self, z_max: float) -> list:
@@ -645,14 +822,18 @@ class _Component:
 
     def remove(self, kind: str, idx: int) -> None:
         (self.active_m if kind == "measurement" else self.active_p)[idx] = False
+        if not self.dense and self.n:
+            self._pending.append(int(idx) if kind == "measurement" else self.m + int(idx))
 
     # ---- final numbers
     def final(self) -> dict:
         """Outputs of the last fit (the loop ends on a refit of the final data set)."""
         if not self.dense and self.n and self.events:
-            self._probes = self._probe()     # fresh estimates for the final data set
+            # estimates for the final data set: the first probes with the data set aside
+            # removed (_downdate), or fresh ones when that update was not possible
+            self._probes = self._probe(fresh=False)
             self.var = self._probes[0]
-            self.h = np.clip(1.0 - self._probes[1].at(self.im, self.ip), 0.0, 1.0)
+            self.h = self._leverage_estimates()
         nm = len(self.im)
         residual, std, lev = (np.full(self.m, np.nan) for _ in range(3))
         untestable = np.zeros(self.m, bool)
@@ -671,7 +852,7 @@ class _Component:
             k = np.array([e.index for e in ev_m])
             Ak = self.A[k]
             r = self.v[k] - (Ak @ self.x if self.n else 0.0)
-            z = r / np.sqrt(self.u[k] ** 2 + self._pred_vars(Ak))
+            z = r / np.sqrt(self.u[k] ** 2 + self._pred_vars(Ak, k))
             residual[k], std[k] = r, z
             for e, ri, zi in zip(ev_m, r, z):
                 e.r_after_j_mol, e.z_after = float(ri), float(zi)
@@ -679,7 +860,7 @@ class _Component:
             k = np.array([e.index for e in ev_p])
             Ak = sp.csr_matrix((np.ones(len(k)), (np.arange(len(k)), k)), shape=(len(k), self.n))
             r = self.p[k] - self.x[k]
-            z = r / np.sqrt(self.ps[k] ** 2 + self._pred_vars(Ak))
+            z = r / np.sqrt(self.ps[k] ** 2 + self._pred_vars(Ak, self.m + k))
             for e, ri, zi in zip(ev_p, r, z):
                 e.r_after_j_mol, e.z_after = float(ri), float(zi)
         sd = np.sqrt(np.maximum(self.var, 0.0))
@@ -705,15 +886,18 @@ def _colscale(J: np.ndarray) -> np.ndarray:
     return np.where(d > 0, 1.0 / np.where(d > 0, d, 1.0), 1.0)
 
 
-def block_pcg(M, B: np.ndarray, dinv: np.ndarray, *, x0: np.ndarray | None = None, rtol: float = 1e-11,
+def block_pcg(M, B: np.ndarray, precond, *, x0: np.ndarray | None = None, rtol=1e-11,
               maxiter: int | None = None) -> np.ndarray:
     """Solve M X = B (M symmetric positive semi-definite, B in its range) for many columns.
 
-    Jacobi-preconditioned conjugate gradients run on all columns at once (one sparse
-    matrix × dense block product per iteration). Stops when every column's residual is
-    below ``rtol`` × its right-hand side norm, or after ``maxiter`` (default 20 n + 100)
-    iterations (capped at 20 000). On a singular consistent system the iterates stay in x0 + D·range(M),
-    so components of the solution in determined directions are unique.
+    Preconditioned conjugate gradients run on all columns at once (one sparse matrix ×
+    dense block product per iteration). ``precond`` is the inverse diagonal (Jacobi, an
+    (n,) array) or a symmetric positive definite sparse matrix applied as Z = P R (the
+    block-diagonal inverse of :func:`block_preconditioner`). Stops when every column's
+    residual is below ``rtol`` (one number, or one per column) × its right-hand side norm,
+    or after ``maxiter`` (default 20 n + 100, capped at 20 000) iterations. On a singular
+    consistent system the iterates stay in x0 + P·range(M), so components of the solution
+    in determined directions are unique.
     """
     B = np.asarray(B, float)
     n, k = B.shape
@@ -721,11 +905,19 @@ def block_pcg(M, B: np.ndarray, dinv: np.ndarray, *, x0: np.ndarray | None = Non
     if n == 0 or k == 0:
         return X
     maxiter = maxiter or min(20 * n + 100, 20000)
-    R = B - M @ X
-    tol2 = (rtol * np.where((bn := np.linalg.norm(B, axis=0)) > 0, bn, 1.0)) ** 2
-    d = dinv[:, None]
-    Z = d * R
+    if isinstance(precond, np.ndarray):
+        d = precond[:, None]
+
+        def apply(R):
+            return d * R
+    else:
+        def apply(R):
+            return precond @ R
+    R = B - M @ X if x0 is not None else B.copy()
+    tol2 = (np.asarray(rtol, float) * np.where((bn := np.linalg.norm(B, axis=0)) > 0, bn, 1.0)) ** 2
+    Z = apply(R)
     P = Z.copy()
+    T = np.empty_like(P)
     rz = np.einsum("ij,ij->j", R, Z)
     for _ in range(maxiter):
         if np.all(np.einsum("ij,ij->j", R, R) <= tol2):
@@ -733,16 +925,137 @@ def block_pcg(M, B: np.ndarray, dinv: np.ndarray, *, x0: np.ndarray | None = Non
         Q = M @ P
         pq = np.einsum("ij,ij->j", P, Q)
         alpha = np.divide(rz, pq, out=np.zeros(k), where=pq > 0)
-        X += alpha * P
+        X += np.multiply(P, alpha, out=T)
         Q *= alpha
         R -= Q
-        np.multiply(d, R, out=Z)
+        Z = apply(R)
         rz_new = np.einsum("ij,ij->j", R, Z)
         beta = np.divide(rz_new, rz, out=np.zeros(k), where=rz > 0)
         P *= beta
         P += Z
         rz = rz_new
     return X
+
+
+#: Block preconditioner: a species joins the block of the datum that carries at least this
+#: share of its weight (diagonal of M); blocks then merge with their strongest neighbour
+#: while (Σ|M_ab|)²/(D_a D_b) ≥ ``_BLOCK_STRENGTH``, up to ``_BLOCK_MAX`` species.
+_BLOCK_SHARE = 0.3
+_BLOCK_STRENGTH = 0.05
+_BLOCK_MAX = 16
+_BLOCK_ROUNDS = 2
+
+
+def block_preconditioner(M, J) -> sp.csr_matrix:
+    """Block-diagonal inverse of M = JᵀJ over groups of strongly coupled species (SPD).
+
+    Why: a datum much more precise than the others around it fixes a combination of its
+    species (x_i − x_j, say) tightly and leaves the orthogonal one loosely determined; the
+    small eigenvalues of D⁻¹M (D = diag M, Jacobi) then sit on such pairs and triples, and
+    conjugate gradients need many iterations. Inverting M exactly on those groups removes
+    them (on the 1e5-species benchmark network the condition number of the preconditioned
+    matrix falls from about 180 with Jacobi to about 18, and CG needs about 2.7 times fewer
+    iterations). Groups: each species joins the group of the row of J that carries the
+    largest share ≥ ``_BLOCK_SHARE`` of its diagonal; then neighbouring groups pair up
+    (mutual strongest |M| coupling, ``_BLOCK_ROUNDS`` rounds, at most ``_BLOCK_MAX``
+    species). Each block is inverted through its eigen-decomposition with eigenvalues
+    clipped below 1e-10 of the block's largest (a block direction with eigenvalue 0 is a
+    null vector of M itself, since M = JᵀJ; the clip keeps the preconditioner definite).
+    Any SPD preconditioner leaves the solution unchanged; only the iteration count depends
+    on it.
+    """
+    lab = _aggregates(M, J)
+    return _block_inverse(M, lab)
+
+
+def _positions(lab: np.ndarray):
+    """(order, start, pos, sizes): members sorted by group, each group's first position in
+    that order, each member's rank within its group, the group sizes."""
+    order = np.argsort(lab, kind="stable")
+    sizes = np.bincount(lab)
+    start = np.concatenate([[0], np.cumsum(sizes)[:-1]])
+    pos = np.empty(len(lab), dtype=np.int64)
+    pos[order] = np.arange(len(lab)) - start[lab[order]]
+    return order, start, pos, sizes
+
+
+def _aggregates(M, J) -> np.ndarray:
+    """Group label per species for :func:`block_preconditioner` (labels 0 … g − 1)."""
+    n = M.shape[0]
+    d = M.diagonal()
+    Jc = sp.coo_matrix(J)
+    keep = Jc.data != 0
+    r, c, v = Jc.row[keep], Jc.col[keep], Jc.data[keep]
+    share = v * v / np.where(d[c] > 0, d[c], 1.0)
+    o = np.lexsort((r, -share, c))                  # per species: the largest share first
+    first = np.ones(len(o), bool)
+    first[1:] = c[o][1:] != c[o][:-1]
+    b = o[first]
+    key = np.arange(n, dtype=np.int64) + J.shape[0]  # singletons: keys beyond every row
+    strong = share[b] >= _BLOCK_SHARE
+    key[c[b][strong]] = r[b][strong]
+    lab = _dense_rank(key)
+    _, _, pos, sizes = _positions(lab)
+    if len(sizes) and sizes.max() > _BLOCK_MAX:      # a datum with many species: split its group
+        lab = np.unique(lab * (n + 1) + pos // _BLOCK_MAX, return_inverse=True)[1].ravel()
+    Ma = sp.csr_matrix(M).tocoo()
+    Ma.data = np.abs(Ma.data)
+    for _ in range(_BLOCK_ROUNDS):
+        na = int(lab.max()) + 1 if n else 0
+        C = sp.coo_matrix((Ma.data, (lab[Ma.row], lab[Ma.col])), shape=(na, na)).tocsr().tocoo()
+        D = np.bincount(lab, weights=d, minlength=na)
+        size = np.bincount(lab, minlength=na)
+        i, j, w = C.row, C.col, C.data
+        ok = (i != j) & (size[i] + size[j] <= _BLOCK_MAX)
+        i, j, w = i[ok], j[ok], w[ok]
+        s = w * w / (D[i] * D[j])
+        ok = s >= _BLOCK_STRENGTH
+        i, j, s = i[ok], j[ok], s[ok]
+        if not len(i):
+            break
+        o = np.lexsort((j, -s, i))                  # per group: its strongest neighbour first
+        f = np.ones(len(o), bool)
+        f[1:] = i[o][1:] != i[o][:-1]
+        pick = np.full(na, -1)
+        pick[i[o][f]] = j[o][f]
+        a = np.flatnonzero(pick >= 0)
+        mutual = a[(pick[pick[a]] == a) & (a < pick[a])]
+        if not len(mutual):
+            break
+        new = np.arange(na)
+        new[pick[mutual]] = mutual
+        lab = _dense_rank(new[lab])
+    return lab
+
+
+def _block_inverse(M, lab: np.ndarray, clip: float = 1e-10) -> sp.csr_matrix:
+    """The inverse of each diagonal block M[g, g] of the groups ``lab`` (see
+    :func:`block_preconditioner`), as one sparse block-diagonal matrix; a species without
+    data (a zero block) gets 0, as in Jacobi."""
+    n = M.shape[0]
+    order, start, pos, sizes = _positions(lab)
+    C = sp.coo_matrix(M)
+    same = lab[C.row] == lab[C.col]
+    r, c, v = C.row[same], C.col[same], C.data[same]
+    rows, cols, vals = [], [], []
+    for s in np.unique(sizes):
+        groups = np.flatnonzero(sizes == s)
+        loc = np.full(len(sizes), -1)
+        loc[groups] = np.arange(len(groups))
+        e = loc[lab[r]] >= 0
+        Bk = np.zeros((len(groups), s, s))
+        Bk[loc[lab[r[e]]], pos[r[e]], pos[c[e]]] = v[e]
+        w, V = np.linalg.eigh(Bk)
+        wmax = np.maximum(w[:, -1:], 0.0)
+        winv = np.where(wmax > 0, 1.0 / np.maximum(w, np.where(wmax > 0, clip * wmax, 1.0)), 0.0)
+        inv = (V * winv[:, None, :]) @ V.transpose(0, 2, 1)
+        members = order[start[groups][:, None] + np.arange(s)]
+        rows.append(np.repeat(members, s, axis=1).ravel())
+        cols.append(np.tile(members, (1, s)).ravel())
+        vals.append(inv.ravel())
+    if not rows:
+        return sp.csr_matrix((n, n))
+    return sp.csr_matrix((np.concatenate(vals), (np.concatenate(rows), np.concatenate(cols))), shape=(n, n))
 
 
 # ------------------------------------------------------------ second and third law

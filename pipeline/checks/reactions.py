@@ -9,13 +9,15 @@ the side tables ``reaction_results`` and ``reconciled``.
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass
+from itertools import chain
 
 import numpy as np
 import pandas as pd
 import scipy.sparse as sp
 
 from .. import network as nw
-from ..constants import LN10, R, T_REF
+from ..constants import GASEOUS_REFERENCE_ATOMICITY, LN10, R, T_REF
 from ..findings import empty_findings, make_findings
 from ..preferred import choose_preferred
 from .context import CheckContext
@@ -38,48 +40,247 @@ def _sources(ctx: CheckContext) -> pd.DataFrame:
 
 
 def preferred_records(ctx: CheckContext) -> dict:
-    """species → preferred record id (sources' priority; records with unwaived errors demoted)."""
+    """species → preferred record id (sources' priority; records with unwaived errors demoted).
+
+    Computed once per context for the same records, sources and earlier findings
+    (``ctx.prior_findings``); callers must not modify the mapping."""
     if not len(ctx.records):
         return {}
-    f = ctx.prior_findings
-    if f is not None and len(f):
-        f = f.assign(waived=f["waived"].fillna(False).astype(bool)) if "waived" in f else f.assign(waived=False)
-    pref = choose_preferred(ctx.records, _sources(ctx), f)
-    return dict(zip(pref["species"], pref["preferred_record_id"]))
+
+    def build():
+        f = ctx.prior_findings
+        if f is not None and len(f):
+            f = (f.assign(waived=f["waived"].fillna(False).astype(bool)) if "waived" in f
+                 else f.assign(waived=False))
+        pref = choose_preferred(ctx.records, _sources(ctx), f)
+        return dict(zip(pref["species"].to_numpy(object), pref["preferred_record_id"].to_numpy(object)))
+
+    return _cached(ctx, "reactions.preferred", (ctx.records, getattr(ctx, "sources", None), ctx.prior_findings),
+                   build)
 
 
-def _evaluate(ctx: CheckContext, record_ids: np.ndarray, t_k: np.ndarray):
+def _cached(ctx: CheckContext, name: str, inputs: tuple, build):
+    """``build()`` kept on the context under ``name`` while ``inputs`` are the same objects."""
+    hit = ctx.cached(name, dict)
+    if "inputs" not in hit or len(hit["inputs"]) != len(inputs) or any(
+            a is not b for a, b in zip(hit["inputs"], inputs)):
+        hit.update(inputs=inputs, value=build())
+    return hit["value"]
+
+
+@dataclass(frozen=True)
+class Stoichiometry:
+    """Every reaction's stoichiometry parsed once, long: term k belongs to reaction row
+    ``row[k]`` (position in ``ctx.reactions``), species ``species[code[k]]``, coefficient
+    ``nu[k]`` (as stated, zeros included; terms in the order of the JSON text)."""
+
+    row: np.ndarray
+    code: np.ndarray
+    nu: np.ndarray
+    species: np.ndarray
+    indptr: np.ndarray      # terms of row i: indptr[i]:indptr[i + 1]
+
+    def select(self, rows: np.ndarray, *, drop_zero: bool = True):
+        """(row position within ``rows``, code, nu) of the terms of reaction rows ``rows``
+        (ascending), in order; coefficients of zero dropped unless ``drop_zero`` is False."""
+        rows = np.asarray(rows, dtype=np.int64)
+        lens = self.indptr[rows + 1] - self.indptr[rows]
+        k = np.repeat(self.indptr[rows] - np.concatenate([[0], np.cumsum(lens)[:-1]]), lens) \
+            + np.arange(int(lens.sum()))
+        pos = np.repeat(np.arange(len(rows)), lens)
+        if drop_zero:
+            nz = self.nu[k] != 0.0
+            k, pos = k[nz], pos[nz]
+        return pos, self.code[k], self.nu[k]
+
+    def as_dict(self, i: int) -> dict:
+        """{species: ν} of reaction row ``i`` (zeros included, as stated)."""
+        a, b = self.indptr[i], self.indptr[i + 1]
+        return dict(zip(self.species[self.code[a:b]].tolist(), self.nu[a:b].tolist()))
+
+
+def stoichiometry(ctx: CheckContext) -> Stoichiometry:
+    """The parsed stoichiometry of ``ctx.reactions`` (cached on the context)."""
+    return _cached(ctx, "reactions.stoichiometry", (ctx.reactions,),
+                   lambda: _parse_stoichiometry(ctx.reactions["stoich_json"].to_numpy(object)))
+
+
+def _parse_stoichiometry(texts: np.ndarray) -> Stoichiometry:
+    """Parse every ``stoich_json`` (null: no terms): the flat form that ``json.dumps`` writes
+    (``{"key": number, "key": number}``) with Arrow string kernels, anything else with
+    ``json`` (one ``json.loads`` of a JSON array; a text that is not valid JSON raises as
+    ``json.loads`` of it alone would)."""
+    texts = np.asarray(texts, dtype=object)
+    fast = _parse_flat_json(texts)
+    if fast is not None:
+        return fast
+    texts = list(texts)
+    is_text = [isinstance(t, str) for t in texts]
+    body = [t if ok else "{}" for t, ok in zip(texts, is_text)]
+    try:
+        dicts = json.loads("[" + ",".join(body) + "]") if body else []
+        if len(dicts) != len(texts) or not all(isinstance(d, dict) for d in dicts):
+            raise ValueError("not one object per reaction")
+    except ValueError:
+        dicts = [json.loads(t) if ok else {} for t, ok in zip(texts, is_text)]
+    for i, (t, ok) in enumerate(zip(texts, is_text)):   # mappings given as objects (frames built in code)
+        if not ok and t is not None and not (isinstance(t, float) and np.isnan(t)):
+            dicts[i] = dict(t)
+    lens = np.fromiter((len(d) for d in dicts), dtype=np.int64, count=len(dicts))
+    keys = list(chain.from_iterable(dicts))
+    nus = np.asarray(list(chain.from_iterable(d.values() for d in dicts)), dtype=float)
+    codes, uniq = pd.factorize(np.asarray(keys, dtype=object), sort=False)
+    return _stoich_from(lens, np.asarray(codes, dtype=np.int64), nus, np.asarray(uniq, dtype=object))
+
+
+def _stoich_from(lens: np.ndarray, codes: np.ndarray, nus: np.ndarray, species: np.ndarray) -> Stoichiometry:
+    return Stoichiometry(row=np.repeat(np.arange(len(lens), dtype=np.int64), lens), code=codes, nu=nus,
+                         species=species, indptr=np.concatenate([[0], np.cumsum(lens)]).astype(np.int64))
+
+
+def _parse_flat_json(texts: np.ndarray) -> Stoichiometry | None:
+    """The Arrow path of :func:`_parse_stoichiometry`, or None when any text is not in the
+    flat form (other spacing, escapes, repeated keys, non-numbers, non-strings …)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if not len(texts) or not all(isinstance(t, str) or t is None or (isinstance(t, float) and np.isnan(t))
+                                 for t in texts):
+        return None
+    try:
+        arr = pa.array(texts, type=pa.string(), from_pandas=True)
+        valid = arr.drop_null()
+        if not (pc.all(pc.starts_with(valid, "{")).as_py() is not False
+                and pc.all(pc.ends_with(valid, "}")).as_py() is not False):
+            return None
+        inner = pc.utf8_slice_codeunits(arr, 1, -1)
+        inner = pc.if_else(pc.equal(inner, ""), pa.scalar(None, pa.string()), inner)     # {} → no terms
+        if pc.any(pc.invert(pc.starts_with(inner.drop_null(), '"'))).as_py():
+            return None
+        pieces = pc.split_pattern(inner, pattern=', "')
+        lens = pc.fill_null(pc.list_value_length(pieces), 0).to_numpy(zero_copy_only=False).astype(np.int64)
+        kv = pc.split_pattern(pc.list_flatten(pieces), pattern='": ', max_splits=1, reverse=True)
+        if len(kv) and pc.any(pc.not_equal(pc.list_value_length(kv), 2)).as_py():
+            return None
+        keys = pc.list_element(kv, 0) if len(kv) else pa.array([], pa.string())
+        first = np.zeros(len(kv), bool)
+        first[np.concatenate([[0], np.cumsum(lens)[:-1]])[lens > 0]] = True
+        keys = pc.if_else(pa.array(first), pc.utf8_slice_codeunits(keys, 1), keys)   # the first key's quote
+        if len(keys) and (pc.any(pc.match_substring(keys, '"')).as_py()
+                          or pc.any(pc.match_substring(keys, "\\")).as_py()):
+            return None
+        nus = (pc.cast(pc.list_element(kv, 1), pa.float64()).to_numpy(zero_copy_only=False) if len(kv)
+               else np.zeros(0))
+    except (pa.ArrowInvalid, pa.ArrowTypeError, pa.ArrowNotImplementedError, IndexError):
+        return None
+    enc = pc.dictionary_encode(keys)
+    codes = enc.indices.to_numpy(zero_copy_only=False).astype(np.int64)
+    species = np.asarray(enc.dictionary.to_pylist(), dtype=object)
+    rows = np.repeat(np.arange(len(lens), dtype=np.int64), lens)
+    if len(codes) and not np.all(np.diff(np.sort(rows * max(len(species), 1) + codes))):
+        return None                                     # a repeated key: json keeps the last value
+    return _stoich_from(lens, codes, nus, species)
+
+
+def _record_ranges(ctx: CheckContext):
+    """(index of record ids, t_low [K], t_high [K]) of every record (cached)."""
+    def build():
+        rec = ctx.records
+        return (pd.Index(rec["record_id"].to_numpy(object)), rec["t_low_k"].to_numpy(float),
+                rec["t_high_k"].to_numpy(float))
+    return _cached(ctx, "reactions.record_ranges", (ctx.records,), build)
+
+
+def _evaluate(ctx: CheckContext, record_ids: np.ndarray, t_k: np.ndarray, which: int | None = None):
     """(h, g, s, h − h298) of (record, T) pairs; NaN where the record is missing or out of range.
 
     A record is used inside its stated range only (a fit is not extrapolated), except that
     one starting at most 5 K above 298.15 K serves down to 297.65 K (many NASA records
     start at 300 K and are used at 298.15 K by convention; Cp·5 K is within every tolerance).
+    ``which`` = 0…3: only that one of the four arrays.
     """
     rid = np.asarray(record_ids, dtype=object)
+    codes, uniq = pd.factorize(rid, use_na_sentinel=True)
+    return _evaluate_coded(ctx, np.asarray(uniq, dtype=object), codes, t_k, which)
+
+
+def _evaluate_coded(ctx: CheckContext, ids: np.ndarray, codes: np.ndarray, t_k: np.ndarray,
+                    which: int | None = None):
+    """:func:`_evaluate` of pairs (record ``ids[codes[k]]``, ``t_k[k]``); ``codes`` < 0 or an id
+    that is not a string: no record. Each distinct (record, T) pair is evaluated once."""
     t = np.asarray(t_k, float)
+    codes = np.asarray(codes, dtype=np.int64)
     out = [np.full(len(t), np.nan) for _ in range(4)]
-    rec = ctx.records.set_index("record_id")
-    lo = pd.Series(rid).map(rec["t_low_k"].astype(float)).to_numpy(float) if len(rec) else np.full(len(t), np.nan)
-    hi = pd.Series(rid).map(rec["t_high_k"].astype(float)).to_numpy(float) if len(rec) else np.full(len(t), np.nan)
-    lo = np.where(lo <= T_REF + 5.0, np.minimum(lo, T_REF - 0.5), lo)
-    ok = (np.array([isinstance(r, str) for r in rid], bool) & np.isfinite(t)
-          & (t >= lo - 1e-6) & (t <= hi + 1e-6))
+    if not len(t) or not len(ctx.records) or not len(ids):
+        return out if which is None else out[which]
+    index, lo_all, hi_all = _record_ranges(ctx)
+
+    def locate():
+        is_str = np.fromiter((isinstance(r, str) for r in ids), dtype=bool, count=len(ids))
+        at = np.full(len(ids), -1, dtype=np.int64)
+        if is_str.any():
+            at[is_str] = index.get_indexer(ids[is_str])    # raises on repeated record ids, as Series.map did
+        return is_str, at
+
+    # the same ids array comes back for every use of one set of terms: locate it once
+    is_str, at = _cached(ctx, "reactions.record_positions", (ids, index), locate)
+    lo_u = np.where(at >= 0, lo_all[np.maximum(at, 0)], np.nan)
+    hi_u = np.where(at >= 0, hi_all[np.maximum(at, 0)], np.nan)
+    lo_u = np.where(lo_u <= T_REF + 5.0, np.minimum(lo_u, T_REF - 0.5), lo_u)
+    have = codes >= 0
+    c = np.maximum(codes, 0)
+    ok = have & is_str[c] & np.isfinite(t) & (t >= lo_u[c] - 1e-6) & (t <= hi_u[c] + 1e-6)
     if ok.any():
-        v = ctx.functions.evaluate(rid[ok].astype(str), t[ok])
+        k = np.flatnonzero(ok)
+        tc, tu = pd.factorize(t[k])                       # few distinct temperatures, usually
+        key = codes[k] * len(tu) + tc
+        if len(ids) * len(tu) <= 8 * len(k) + 1_000_000:
+            present = np.bincount(key, minlength=len(ids) * len(tu)) > 0
+            pair = (np.cumsum(present) - 1)[key]
+        else:
+            _, pair = np.unique(key, return_inverse=True)
+            pair = pair.ravel()
+        first = np.empty(int(pair.max()) + 1, dtype=np.int64)
+        first[pair] = k                                   # one term of each distinct (record, T)
+        v = ctx.functions.evaluate(ids[codes[first]].astype(str), t[first])
         for arr, val in zip(out, (v.h, v.g, v.s, v.h_minus_h298)):
-            arr[ok] = val
-    return out
+            arr[k] = np.asarray(val, float)[pair]
+    return out if which is None else out[which]
 
 
-def _terms(ctx: CheckContext, rx: pd.DataFrame, pref: dict) -> pd.DataFrame:
-    """Long form of ``rx``'s stoichiometry with each term's preferred record and T."""
-    long = nw.stoich_long(rx["stoich_json"].tolist())
-    long["t_k"] = rx["t_k"].to_numpy(float)[long["row"].to_numpy()] if len(long) else np.zeros(0)
-    long["record_id"] = long["species"].map(pref)
-    return long
+@dataclass
+class Terms:
+    """Terms of a set of reaction rows: ``row`` (position within the set), species ``code``
+    (into ``species``), ``nu`` (zeros dropped), ``t_k`` [K], and the preferred record
+    ``record_ids[code]`` of each species (None: none)."""
+
+    row: np.ndarray
+    code: np.ndarray
+    nu: np.ndarray
+    t_k: np.ndarray
+    species: np.ndarray
+    record_ids: np.ndarray
+
+    def __len__(self) -> int:
+        return len(self.row)
+
+    def evaluate(self, ctx: CheckContext, t_k: np.ndarray | None = None, which: int | None = None):
+        """:func:`_evaluate` of each term's preferred record at ``t_k`` (default: its own T)."""
+        return _evaluate_coded(ctx, self.record_ids, self.code, self.t_k if t_k is None else t_k, which)
 
 
-def _species_uncertainty(ctx: CheckContext, long: pd.DataFrame, column: str, pref: dict) -> np.ndarray:
+def _terms(ctx: CheckContext, rows: np.ndarray, t_k: np.ndarray, pref: dict) -> Terms:
+    """The terms of reaction rows ``rows`` (ascending positions in ``ctx.reactions``; ``t_k``
+    their temperatures)."""
+    st = stoichiometry(ctx)
+    pos, code, nu = st.select(rows)
+    rec_u = _cached(ctx, "reactions.species_records", (st, pref),
+                    lambda: np.array([pref.get(s) for s in st.species], dtype=object))
+    return Terms(row=pos, code=code, nu=nu, t_k=np.asarray(t_k, float)[pos] if len(pos) else np.zeros(0),
+                 species=st.species, record_ids=rec_u)
+
+
+def _species_uncertainty(ctx: CheckContext, long: Terms, column: str, pref: dict) -> np.ndarray:
     """Stated standard uncertainty ``column`` of each term's species at the tabulated T
     nearest the term's T: the preferred record's table first, else any table of the species."""
     out = np.full(len(long), np.nan)
@@ -91,9 +292,11 @@ def _species_uncertainty(ctx: CheckContext, long: pd.DataFrame, column: str, pre
         return out
     cand = cand.merge(ctx.records[["record_id", "species"]], on="record_id")
     cand = cand.assign(t_k=cand["t_k"].astype(float), is_pref=cand["record_id"].eq(cand["species"].map(pref)))
-    left = pd.DataFrame({"pos": np.arange(len(long)), "species": long["species"].to_numpy(),
-                         "t_k": long["t_k"].to_numpy(float)})
-    left = left[np.isfinite(left["t_k"])].sort_values("t_k", kind="stable")
+    # only terms of species that have such a table can get a value
+    keep = np.flatnonzero(pd.Index(long.species).isin(pd.unique(cand["species"]))[long.code]
+                          & np.isfinite(long.t_k))
+    left = pd.DataFrame({"pos": keep, "species": long.species[long.code[keep]], "t_k": long.t_k[keep]})
+    left = left.sort_values("t_k", kind="stable")
     for subset in (cand[cand["is_pref"]], cand):
         if not len(subset) or not len(left):
             continue
@@ -116,10 +319,9 @@ def computed_reactions(ctx: CheckContext, pref: dict | None = None) -> pd.DataFr
     rx = ctx.reactions.reset_index(drop=True)
     n = len(rx)
     pref = preferred_records(ctx) if pref is None else pref
-    long = _terms(ctx, rx, pref)
-    row = long["row"].to_numpy()
-    nu = long["nu"].to_numpy(float)
-    h, g, _, _ = _evaluate(ctx, long["record_id"].to_numpy(object), long["t_k"].to_numpy(float))
+    long = _terms(ctx, np.arange(n), rx["t_k"].to_numpy(float), pref)
+    row, nu = long.row, long.nu
+    h, g, _, _ = long.evaluate(ctx)
     q = rx["quantity"].to_numpy(object)
     t = rx["t_k"].to_numpy(float)
     drh = nw.reaction_sum(row, nu * h, n)
@@ -143,9 +345,10 @@ def computed_reactions(ctx: CheckContext, pref: dict | None = None) -> pd.DataFr
         z = np.where(u_comb > 0, residual / u_comb, np.where(residual == 0, 0.0, np.sign(residual) * np.inf))
     # which species made a value impossible, and why
     term_val = np.where(is_h, h, g)
-    missing = ~np.isfinite(term_val)
-    why = np.where(long["record_id"].isna().to_numpy(), "no record", "outside its range or without ΔfH°")
-    miss = pd.DataFrame({"row": row[missing], "txt": long["species"].to_numpy(object)[missing] + " (" + why[missing] + ")"})
+    missing = np.flatnonzero(~np.isfinite(term_val))
+    no_rec = pd.isna(long.record_ids)[long.code[missing]]
+    why = np.where(no_rec, "no record", "outside its range or without ΔfH°")
+    miss = pd.DataFrame({"row": row[missing], "txt": long.species[long.code[missing]] + " (" + why + ")"})
     miss_txt = miss.groupby("row")["txt"].agg("; ".join) if len(miss) else pd.Series(dtype=object)
     return pd.DataFrame({"reaction_id": rx["reaction_id"].to_numpy(object), "computed_value": computed,
                          "residual": residual, "z": z, "u_combined": u_comb,
@@ -153,12 +356,25 @@ def computed_reactions(ctx: CheckContext, pref: dict | None = None) -> pd.DataFr
 
 
 def reference_species(ctx: CheckContext) -> set:
-    """Species that are elements in their reference state (ΔfH° = 0 by definition)."""
-    from ..properties import element_references
-
+    """Species that are elements in their reference state (ΔfH° = 0 by definition), by
+    :func:`pipeline.properties.element_references` (cached on the context)."""
     if not len(ctx.species):
         return set()
-    return set(element_references(ctx.species)["species"])
+    return _cached(ctx, "reactions.reference_species", (ctx.species,), lambda: _reference_species(ctx))
+
+
+def _reference_species(ctx: CheckContext) -> set:
+    """``element_references`` decides each species from its own row (exactly one element,
+    the electron of an ion included; the flag; no charge) and the presence of a few fixed
+    keys, so it is run on the species with at most one element in ``ctx.elements`` (a
+    superset of those) and on those keys: the same result, in much less time."""
+    from ..properties import element_references
+
+    sp_ = ctx.species
+    fixed = {f"{el}{n if n > 1 else ''}(g)" for el, n in GASEOUS_REFERENCE_ATOMICITY.items()} | {"e-(g)"}
+    n_el = ctx.elements.groupby("species").size()
+    few = (sp_["species"].map(n_el).fillna(0).to_numpy(float) <= 1) | sp_["species"].isin(fixed).to_numpy()
+    return set(element_references(sp_[few].reset_index(drop=True))["species"])
 
 
 # ------------------------------------------------------------------- reaction.residual
@@ -188,7 +404,10 @@ def reaction_residual(ctx: CheckContext) -> pd.DataFrame:
     ctx.tables_out["reaction_results"] = res[list(RESULT_COLUMNS)].copy()
     zw, ze = ctx.tol(cid, "z_warning"), ctx.tol(cid, "z_error")
     q = rx["quantity"].to_numpy(object)
-    unit = np.array([UNIT.get(x, "") for x in q], dtype=object)
+
+    def unit(rows):
+        return np.array([UNIT.get(x, "") for x in q[rows]], dtype=object)
+
     az = np.abs(res["z"].to_numpy(float))
     sev = np.where(az > ze, "error", np.where(az > zw, "warning", None))
     parts = []
@@ -202,7 +421,7 @@ def reaction_residual(ctx: CheckContext) -> pd.DataFrame:
         parts.append(make_findings(
             check_id=cid, severity=sev[bad], subject=r["reaction_id"], subject_kind="reaction",
             source_id=r["source_id"], t_k=r["t_k"], observed=r["value"], expected=x["computed_value"],
-            tolerance=np.where(sev[bad] == "error", ze, zw) * x["u_combined"].to_numpy(float), unit=unit[bad],
+            tolerance=np.where(sev[bad] == "error", ze, zw) * x["u_combined"].to_numpy(float), unit=unit(bad),
             message=msgs,
             hint="a wrong species value (see the cycle and network checks: do other reactions agree?), "
                  "a unit or sign slip in the measurement, or an underestimated uncertainty"))
@@ -211,7 +430,7 @@ def reaction_residual(ctx: CheckContext) -> pd.DataFrame:
         r, x = rx.iloc[nan], res.iloc[nan]
         parts.append(make_findings(
             check_id=cid, severity="info", subject=r["reaction_id"], subject_kind="reaction",
-            source_id=r["source_id"], t_k=r["t_k"], observed=r["value"], unit=unit[nan],
+            source_id=r["source_id"], t_k=r["t_k"], observed=r["value"], unit=unit(nan),
             message=[f"cannot compute {qq} at {t:g} K from the curated species: {m if isinstance(m, str) else 'no value'}"
                      for qq, t, m in zip(r["quantity"], r["t_k"], x["missing"])],
             hint="add the missing species (or a table reaching this temperature) to test this measurement"))
@@ -263,7 +482,7 @@ def cycle_closure(ctx: CheckContext) -> pd.DataFrame:
     ok = (qg != None) & np.isfinite(v) & np.isfinite(u) & np.isfinite(t) & rx["stoich_json"].notna().to_numpy()  # noqa: E711
     if not ok.any():
         return empty_findings()
-    stoich = [json.loads(s) if ok[i] else {} for i, s in enumerate(rx["stoich_json"].to_numpy(object))]
+    st = stoichiometry(ctx)
     window = ctx.tol(cid, "same_t_k")
     cap = int(ctx.tol(cid, "max_component_reactions"))
     parts, rows_out = [], []
@@ -278,8 +497,9 @@ def cycle_closure(ctx: CheckContext) -> pd.DataFrame:
         members = grp["i"].to_numpy()
         if len(members) < 2:
             continue
-        comp = nw.row_components([list(stoich[i]) for i in members], len(members))
-        for c in np.unique(comp):
+        pos, code, _ = st.select(members, drop_zero=False)
+        comp = nw.term_components(pos, code, len(members))
+        for c in np.flatnonzero(np.bincount(comp)):
             sel = members[comp == c]
             if len(sel) < 2:
                 continue
@@ -291,7 +511,7 @@ def cycle_closure(ctx: CheckContext) -> pd.DataFrame:
                             f"{cap}, cycles not enumerated (network.worst-offender tests them)",
                     hint="raise max_component_reactions for cycle.closure in the configuration to enumerate them"))
                 continue
-            cycles = nw.cycle_basis([stoich[i] for i in sel])
+            cycles = nw.cycle_basis([st.as_dict(i) for i in sel])
             if not cycles:
                 continue
             s, us, z = nw.cycle_closure(cycles, v[sel], u[sel])
@@ -381,17 +601,19 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
     if not len(meas):
         ctx.tables_out["reconciled"] = empty_table
         return empty_findings()
-    long = nw.stoich_long(meas["stoich_json"].tolist())
+    st = stoichiometry(ctx)
+    row, code, nu = st.select(np.flatnonzero(sel))
     refs = reference_species(ctx)
-    is_ref = long["species"].isin(refs).to_numpy()
-    unknown = np.array(sorted(set(long["species"][~is_ref])), dtype=object)
-    col = {s: i for i, s in enumerate(unknown)}
-    lu = long[~is_ref]
-    A = sp.csr_matrix((lu["nu"].to_numpy(float), (lu["row"].to_numpy(), lu["species"].map(col).to_numpy())),
-                      shape=(len(meas), len(unknown)))
+    is_ref = np.fromiter((s in refs for s in st.species), dtype=bool, count=len(st.species))[code]
+    present = np.flatnonzero(np.bincount(code[~is_ref], minlength=len(st.species)))
+    unknown = np.array(sorted(st.species[present].tolist()), dtype=object)
+    col = np.full(len(st.species), -1, dtype=np.int64)
+    col[present] = pd.Index(unknown).get_indexer(st.species[present])
+    A = sp.csr_matrix((nu[~is_ref], (row[~is_ref], col[code[~is_ref]])), shape=(len(meas), len(unknown)))
     pref = preferred_records(ctx)
     prior, prior_sd = _priors(ctx, unknown, pref)
-    h_rec = _evaluate(ctx, pd.Series(unknown).map(pref).to_numpy(object), np.full(len(unknown), T_REF))[0]
+    h_rec = _evaluate(ctx, np.array([pref.get(s) for s in unknown], dtype=object), np.full(len(unknown), T_REF),
+                      which=0)
     record_value = np.where(np.isfinite(h_rec), h_rec, prior)
     fit = nw.reconcile(A, meas["value"].to_numpy(float), meas["uncertainty"].to_numpy(float), prior, prior_sd,
                        z_max=ctx.tol(cid, "z_max"), alpha=ctx.tol(cid, "chi2_alpha"))
@@ -407,7 +629,7 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
         "prior_dfh_298_j_mol": prior, "prior_uncertainty_dfh_298_j_mol": prior_sd,
         "determined": det.astype(bool), "chi2": chi2, "dof": dof,
         "reduced_chi2": np.where(dof > 0, chi2 / np.where(dof > 0, dof, 1), np.nan)})
-    ref_in = sorted(set(long["species"][is_ref]))
+    ref_in = sorted(st.species[np.flatnonzero(np.bincount(code[is_ref], minlength=len(st.species)))].tolist())
     if ref_in:
         tbl = pd.concat([tbl, pd.DataFrame({
             "species": ref_in, "dfh_298_j_mol": 0.0, "uncertainty_dfh_298_j_mol": 0.0,
@@ -484,12 +706,20 @@ def law_series(ctx: CheckContext) -> tuple[pd.DataFrame, nw.LawResult | None]:
 
     A series is the rows sharing ``series``, else the rows of one equation (same
     stoichiometry); its id is the ``series`` value, else the id of its first row.
-    Returns (per-series frame: series_id, source_id, n, ok; LawResult over the ok ones).
+    Returns (per-series frame: series_id, source_id, n, ok; LawResult over the ok ones);
+    computed once per context for both law checks (callers must not modify it).
     """
+    return _cached(ctx, "reactions.law_series", (ctx.reactions, ctx.records, ctx.segments, ctx.table_points,
+                                                 getattr(ctx, "sources", None), ctx.prior_findings),
+                   lambda: _law_series(ctx))
+
+
+def _law_series(ctx: CheckContext) -> tuple[pd.DataFrame, nw.LawResult | None]:
     rx = ctx.reactions.reset_index(drop=True)
     keep = (rx["quantity"].isin(["log_k", "drg"]) & np.isfinite(rx["t_k"].astype(float))
             & np.isfinite(rx["value"].astype(float)) & (rx["uncertainty"].astype(float) > 0)
             & rx["stoich_json"].notna()).to_numpy()
+    rows_kept = np.flatnonzero(keep)
     rx = rx[keep].reset_index(drop=True)
     if not len(rx):
         return pd.DataFrame(columns=["series_id", "source_id", "n"]), None
@@ -509,12 +739,10 @@ def law_series(ctx: CheckContext) -> tuple[pd.DataFrame, nw.LawResult | None]:
     sid = {k: series_id(s, r) for k, s, r in zip(first["_key"], first["_ser"], first["reaction_id"])}
     rx["_sid"] = rx["_key"].map(sid)
     pref = preferred_records(ctx)
-    long = _terms(ctx, rx, pref)
-    row = long["row"].to_numpy()
-    nu = long["nu"].to_numpy(float)
-    rid = long["record_id"].to_numpy(object)
-    _, _, s_t, hmh_t = _evaluate(ctx, rid, long["t_k"].to_numpy(float))
-    _, _, s_298, _ = _evaluate(ctx, rid, np.full(len(long), T_REF))
+    long = _terms(ctx, rows_kept, rx["t_k"].to_numpy(float), pref)
+    row, nu = long.row, long.nu
+    _, _, s_t, hmh_t = long.evaluate(ctx)
+    s_298 = long.evaluate(ctx, np.full(len(long), T_REF), which=2)
     n = len(rx)
     d_hmh = nw.reaction_sum(row, nu * hmh_t, n)
     d_ss = nw.reaction_sum(row, nu * (s_t - s_298), n)
