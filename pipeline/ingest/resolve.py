@@ -92,6 +92,17 @@ def key_reason(key: str, elements: dict) -> str | None:
     return None
 
 
+def _elements_of(elements_json, memo: dict) -> dict:
+    """{element: count} of a record's ``elements_json`` ({} when missing); ``memo`` keeps the
+    texts already parsed (many records share a composition)."""
+    if not isinstance(elements_json, str):
+        return {}
+    got = memo.get(elements_json)
+    if got is None:
+        got = memo[elements_json] = json.loads(elements_json)
+    return got
+
+
 def built_keys(records: pd.DataFrame) -> pd.DataFrame:
     """``records`` with :func:`build_key`'s result for every record that names no full key
     (``species_hint``): ``built_key``, ``built_ok`` and ``built_reason`` (:func:`key_reason`). It depends on the record alone, so it
@@ -108,12 +119,7 @@ def built_keys(records: pd.DataFrame) -> pd.DataFrame:
             oks.append(True)
             reasons.append(None)
             continue
-        if isinstance(ej, str):
-            elements = parsed.get(ej)
-            if elements is None:
-                elements = parsed[ej] = json.loads(ej)
-        else:
-            elements = {}
+        elements = _elements_of(ej, parsed)
         z = 0 if pd.isna(charge) else int(charge)
         key, ok = build_key(name, state, label if isinstance(label, str) else None, elements, z)
         keys.append(key)
@@ -149,12 +155,7 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
     checked: dict = {}          # (key, elements_json) → reason or None
     for rid, src, name, hint, state, label, ej, charge, built, built_ok, built_reason in zip(*cols.values()):
-        if isinstance(ej, str):
-            elements = parsed_json.get(ej)
-            if elements is None:
-                elements = parsed_json[ej] = json.loads(ej)
-        else:
-            elements = {}
+        elements = _elements_of(ej, parsed_json)
         key = None
         for cand in (name, hint):
             if isinstance(cand, str) and cand.lower() in amap:
