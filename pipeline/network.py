@@ -318,6 +318,13 @@ N_CANDIDATES = 12
 #: A leverage within this of 1 counts as h = 1 (the datum alone fixes a combination).
 H_ONE = 1e-8
 
+#: Iterative path: residual tolerance of the exact solves M⁺j_k (leverages, prediction
+#: variances). h = j·M⁺j converges as the square of the error in M-norm: 1e-5 gives h to
+#: about 1e-11 on the 1e5-species network (1e-4: 1e-9), so t = r/√(1 − h) of data that the
+#: network cannot tell apart agree far inside the 1e-6 within which they are reported
+#: together (for 1 − h > 1e-4), and h = 1 is told from h < 1 − ``H_ONE``.
+_EXACT_RTOL = 1e-5
+
 #: Iterative path: an estimated 1 − h between ``H_ONE`` and this is checked by an exact solve.
 _H_GRAY = 1e-5
 
@@ -459,8 +466,17 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
     for c, a0, a1, b0, b1 in zip(comps, m_start, m_end, n_start, n_end):
         rows = order_m[a0:a1]
         cols = order_n[b0:b1]
+        dense = len(cols) <= dense_max
+        groups = order = None
+        if not dense and len(cols) > 1:
+            # iterative: the species of each preconditioner group next to each other (the sparse
+            # products read memory far more locally; the results do not depend on the order)
+            Asub = A[rows][:, cols]
+            groups = _aggregates(*_normal_matrix(Asub, u[rows], ps[cols], has_prior[cols]))
+            order = np.argsort(groups, kind="stable")
+            cols, groups = cols[order], groups[order]
         sub = _Component(A[rows][:, cols], v[rows], u[rows], p[cols], ps[cols], has_prior[cols],
-                         dense=len(cols) <= dense_max, n_probes=n_probes, rng=rng)
+                         dense=dense, n_probes=n_probes, rng=rng, groups=groups, given_order=order)
         _worst_offender_loop(sub, z_max, alpha, max_set_aside_fraction)
         res = sub.final()
         fit.x_j_mol[cols] = np.where(res["determined"], res["x"], np.nan)
@@ -481,6 +497,19 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
             e.tied = [(k, int(rows[i]) if k == "measurement" else int(cols[i])) for k, i in e.tied]
             fit.set_aside.append(e)
     return fit
+
+
+def _design(A, u, ps, im, ip) -> sp.csr_matrix:
+    """Whitened design rows: measurements ``im`` (a/u), then priors of species ``ip`` (e_i/σ)."""
+    Jm = sp.diags(1.0 / u[im]) @ A[im]
+    Jp = sp.csr_matrix((1.0 / ps[ip], (np.arange(len(ip)), ip)), shape=(len(ip), A.shape[1]))
+    return sp.vstack([Jm, Jp], format="csr")
+
+
+def _normal_matrix(A, u, ps, has_prior):
+    """(M = JᵀJ, J) of every datum of a component."""
+    J = _design(sp.csr_matrix(A), u, ps, np.arange(A.shape[0]), np.flatnonzero(has_prior))
+    return (J.T @ J).tocsr(), J
 
 
 def _worst_offender_loop(c: "_Component", z_max: float, alpha: float, max_frac: float) -> None:
@@ -513,7 +542,8 @@ def _worst_offender_loop(c: "_Component", z_max: float, alpha: float, max_frac: 
 class _Component:
     """One connected component of the network: data, current fit, removals."""
 
-    def __init__(self, A, v, u, p, ps, has_prior, *, dense: bool, n_probes: int, rng):
+    def __init__(self, A, v, u, p, ps, has_prior, *, dense: bool, n_probes: int, rng, groups=None,
+                 given_order=None):
         self.A = sp.csr_matrix(A)
         self.v, self.u, self.p, self.ps = v, u, p, ps
         self.m, self.n = self.A.shape
@@ -526,7 +556,10 @@ class _Component:
         self.stopped_early = ""
         self._null_info = None   # (determined, null_dim): invariant under removals with h < 1
         self._prec = None        # iterative path: block preconditioner (block_preconditioner) …
-        self._groups = None      # … and its groups of species
+        self._groups = groups    # … and its groups of species
+        # the species' positions as the caller first listed them (None: as they are): prior
+        # rows keep that order, so the probes' random numbers meet the same data
+        self._given_order = given_order
         self._probes = None      # iterative path: (var per species, _RowMap of 1 − h per datum, Y)
         # iterative path, kept up to date through removals (see _downdate): the probe vectors
         # G (rows: the data in _gkeys) and their solutions Y = M⁺JᵀG, and exact solutions
@@ -535,6 +568,7 @@ class _Component:
         self._solved: dict[int, np.ndarray] = {}
         self._pending: list[int] = []
         self._aside: list[int] = []          # keys of the data set aside so far
+        self._recent: set[int] = set()       # keys whose exact leverage this step needed
         self._aside_exact = True             # their exact prediction variances are affordable
         self.x = np.zeros(self.n)
 
@@ -542,9 +576,9 @@ class _Component:
         """Whitened rows of the active data: measurements, then priors."""
         im = np.flatnonzero(self.active_m)
         ip = np.flatnonzero(self.active_p)
-        Jm = sp.diags(1.0 / self.u[im]) @ self.A[im]
-        Jp = sp.csr_matrix((1.0 / self.ps[ip], (np.arange(len(ip)), ip)), shape=(len(ip), self.n))
-        J = sp.vstack([Jm, Jp], format="csr")
+        if self._given_order is not None:
+            ip = ip[np.argsort(self._given_order[ip], kind="stable")]
+        J = _design(self.A, self.u, self.ps, im, ip)
         b = np.concatenate([self.v[im] / self.u[im], self.p[ip] / self.ps[ip]])
         sig = np.concatenate([self.u[im], self.ps[ip]])
         return J, b, sig, im, ip
@@ -584,7 +618,7 @@ class _Component:
         if self._pending:
             self._downdate()     # while self.M is still the matrix that held the removed data
         self.M = (J.T @ J).tocsr()
-        if self._prec is None:
+        if self._groups is None:
             self._groups = _aggregates(self.M, J)
         if removed:              # the groups stay; their blocks follow the data kept
             self._prec = _block_inverse(self.M, self._groups)
@@ -651,10 +685,7 @@ class _Component:
         need = [k for k in dict.fromkeys(int(k) for k in keys) if k not in self._solved]
         if need:
             Bn = self._rows_of(need).T.toarray()
-            # h = j·M⁺j converges as the square of the error in M-norm: a residual of 1e-4
-            # gives h to about 1e-9 (measured on the 1e5-species network), far inside what
-            # the |t| > 3 test can resolve
-            Yn = block_pcg(self.M, Bn, self._prec, rtol=1e-4)
+            Yn = block_pcg(self.M, Bn, self._prec, rtol=_EXACT_RTOL)
             for j, k in enumerate(need):
                 self._solved[k] = Yn[:, j]
         return np.column_stack([self._solved[int(k)] for k in keys]) if len(keys) else np.zeros((self.n, 0))
@@ -690,8 +721,11 @@ class _Component:
             self._G = self._Y = self._gkeys = None
             return
         Sinv = np.linalg.inv(S)
-        # keep only the solves of set-aside data (prediction variances); candidates are re-solved
-        keys = [k for k in self._aside if k in self._solved] if self._aside_exact else []
+        # keep the solves of this step's candidates (often candidates again) and, while their
+        # number is small, of the data set aside (prediction variances); older ones are dropped
+        aside = set(self._aside) if self._aside_exact else set()
+        keys = [k for k in self._solved if k in self._recent or k in aside]
+        self._recent = set()
         if keys:
             C = np.column_stack([self._solved[k] for k in keys])
             C += Z @ (Sinv @ (JR @ C))
@@ -699,7 +733,7 @@ class _Component:
         else:
             self._solved = {}
         if self._Y is not None:
-            pos = np.searchsorted(self._gkeys, R)
+            pos = pd.Index(self._gkeys).get_indexer(R)
             self._Y += Z @ (Sinv @ (JR @ self._Y - self._G[pos]))
             keep = np.ones(len(self._gkeys), bool)
             keep[pos] = False
@@ -743,7 +777,9 @@ class _Component:
 
     def _exact_h(self, rows: np.ndarray) -> np.ndarray:
         B = self.J[rows]
-        Y = self._solve_rows(self._keys(rows))
+        keys = self._keys(rows)
+        self._recent.update(int(k) for k in keys)
+        Y = self._solve_rows(keys)
         return np.clip(np.asarray((B.multiply(Y.T)).sum(axis=1)).ravel(), 0.0, 1.0)
 
     def _pred_vars(self, Ak, keys: np.ndarray) -> np.ndarray:
