@@ -23,7 +23,6 @@ References
 """
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import dataclass, field
 from fractions import Fraction
@@ -38,26 +37,6 @@ from scipy.special import chdtri as _chi2_upper_quantile   # scipy.stats would c
 from .constants import LN10, R
 
 # ------------------------------------------------------------------------ stoichiometry
-
-
-def stoich_long(stoich_json: Sequence[str]) -> pd.DataFrame:
-    """Explode ``stoich_json`` strings into long form: ``row, species, nu``.
-
-    ``row`` is the position in ``stoich_json``; a null or empty entry contributes no rows.
-    Coefficients of zero are dropped.
-    """
-    rows, species, nus = [], [], []
-    for i, s in enumerate(stoich_json):
-        if s is None or (isinstance(s, float) and math.isnan(s)):
-            continue
-        d = json.loads(s) if isinstance(s, str) else dict(s)
-        for k, v in d.items():
-            if float(v) != 0.0:
-                rows.append(i)
-                species.append(k)
-                nus.append(float(v))
-    return pd.DataFrame({"row": np.asarray(rows, dtype=np.int64), "species": pd.Series(species, dtype=object),
-                         "nu": np.asarray(nus, dtype=float)})
 
 
 def reaction_sum(row: np.ndarray, terms: np.ndarray, n_rows: int) -> np.ndarray:

@@ -420,6 +420,25 @@ def _scan(ranges: _Ranges, t, joints, C_can, d):
     return rss, ranges.y_ref[:, None] + delta / D
 
 
+def _split_scaled(Bs, below, C2):
+    """Design and constraint matrices of a two-range fit, equilibrated.
+
+    ``Bs`` (k, 2, 3m, q): the rows in each range's basis; ``below`` (k, 3m, 1): rows at or
+    below the joint; ``C2`` (k, 2, 5, q): the constraints in each range's basis. Returns
+    A (k, 3m, 2q) with each row in its own range's columns, A and C with unit column
+    norms of A (D (k, 2q) the norms), C's rows then scaled to unit norm (rn (k, 5)):
+    ``(A, A / D, C / D / rn, D, rn)``.
+    """
+    A = np.concatenate([np.where(below, Bs[:, 0], 0.0), np.where(below, 0.0, Bs[:, 1])], axis=-1)
+    C = np.concatenate([C2[:, 0], C2[:, 1]], axis=-1)
+    D = np.sqrt(np.sum(A * A, axis=1))
+    D = np.where(D > 0, D, 1.0)
+    As, Cs = A / D[:, None, :], C / D[:, None, :]
+    rn = np.sqrt(np.sum(Cs * Cs, axis=-1))
+    rn = np.where(rn > 0, rn, 1.0)
+    return A, As, Cs / rn[..., None], D, rn
+
+
 def _lawson(rows, rhs, t, lo, hi, tj, C_can, d, terms, iterations):
     """Lawson's reweighted fits at the joints tj (n,): the canonical coefficients (n, 2, q)
     of the last iteration whose fit came out finite (NaN where none did).
@@ -435,15 +454,8 @@ def _lawson(rows, rhs, t, lo, hi, tj, C_can, d, terms, iterations):
     M = np.stack([_adapted_basis(lo, tj, terms), _adapted_basis(tj, hi, terms)], axis=1)   # (n, 2, q, q)
     Bs = rows[:, None] @ M                                                 # (n, 2, 3m, q)
     below = (np.concatenate([t, t, t], axis=1) <= tj[:, None])[..., None]  # (n, 3m, 1)
-    B = np.concatenate([np.where(below, Bs[:, 0], 0.0), np.where(below, 0.0, Bs[:, 1])], axis=-1)  # (n, 3m, 2q)
-    C = C_can[:, 0] @ M                                                    # (n, 2, 5, q)
-    C = np.concatenate([C[:, 0], C[:, 1]], axis=-1)                        # (n, 5, 2q)
-    D = np.sqrt(np.sum(B * B, axis=1))
-    D = np.where(D > 0, D, 1.0)                                            # (n, 2q)
-    B, C = B / D[:, None, :], C / D[:, None, :]
-    rn = np.sqrt(np.sum(C * C, axis=-1))
-    rn = np.where(rn > 0, rn, 1.0)
-    C, d = C / rn[..., None], d / rn
+    _, B, C, D, rn = _split_scaled(Bs, below, C_can[:, 0] @ M)            # B (n, 3m, 2q), C (n, 5, 2q)
+    d = d / rn
     U, sig, Vt = np.linalg.svd(C, full_matrices=True)                     # Vt (n, 2q, 2q)
     y_p = np.einsum("nki,nk->ni", Vt[:, :5, :], np.einsum("nlk,nl->nk", U, d) / sig)
     N = np.swapaxes(Vt[:, 5:, :], -1, -2)                                 # (n, 2q, 2q − 5)
@@ -528,15 +540,8 @@ class _SharedRange:
                           _adapted_basis(tj, np.full(k, self.hi), self.terms)], axis=1)  # (k, 2, q, q)
             Bs = self.rows[None, None] @ M                                 # (k, 2, 3m, q)
             below = (self.t3[None, :] <= tj[:, None])[..., None]
-            A = np.concatenate([np.where(below, Bs[:, 0], 0.0), np.where(below, 0.0, Bs[:, 1])], axis=-1)
-            C = _constraints(tj[None, :], np.array([self.t_anchor]), self.terms)[0] @ M  # (k, 2, 5, q)
-            C = np.concatenate([C[:, 0], C[:, 1]], axis=-1)                # (k, 5, 2q)
-            D = np.sqrt(np.sum(A * A, axis=1))
-            D = np.where(D > 0, D, 1.0)                                    # (k, 2q)
-            As, Cs = A / D[:, None, :], C / D[:, None, :]
-            rn = np.sqrt(np.sum(Cs * Cs, axis=-1))
-            rn = np.where(rn > 0, rn, 1.0)
-            Cs = Cs / rn[..., None]
+            A, As, Cs, D, rn = _split_scaled(
+                Bs, below, _constraints(tj[None, :], np.array([self.t_anchor]), self.terms)[0] @ M)
             U, sig, Vt = np.linalg.svd(Cs, full_matrices=True)
             with np.errstate(divide="ignore", invalid="ignore"):
                 P1 = np.swapaxes(Vt[:, :5, :], -1, -2) @ (np.swapaxes(U, -1, -2) / sig[..., None])  # y_p = P1 d
