@@ -15,6 +15,7 @@ import re
 from dataclasses import dataclass, field
 from functools import lru_cache
 
+import numpy as np
 import periodictable
 
 STATES: tuple[str, ...] = ("g", "l", "cr", "aq")
@@ -293,6 +294,200 @@ def recase_name(name: str, elements: dict, charge: int = 0) -> str | None:
 
     if len(core) > 24:
         return None
+    # The name as written, when it already parses to the counts (``C31H50N2``, ``NaCl``): for
+    # a name in capitals this is also the first casing the search below would try.
+    try:
+        f = parse_formula(name)
+    except FormulaError:
+        pass
+    else:
+        if {k: v for k, v in f.elements.items() if k != ELECTRON} == target:
+            return name
     # A matching casing uses only the record's own elements, unless a symbol is written with
     # a zero count: search those casings first (a handful), then every casing.
     return first_match(target.__contains__) or first_match(_is_element)
+
+
+# ----------------------------------------------------------------- many formulas at once
+
+#: A formula the batch parser reads with string kernels: element symbols with optional
+#: integer counts (at most 15 digits, exact in a float), then an optional charge written
+#: as one sign with a magnitude or as repeated signs of one kind.
+_BATCH_FORMULA = r"^(?P<body>(?:[A-Z][a-z]?\d{0,15})+)(?P<sign>\++|-+)?(?P<n>\d*)$"
+
+
+@dataclass(frozen=True)
+class FormulaBatch:
+    """:func:`parse_formula` of many texts, in long format.
+
+    ``ok[i]``: text ``i`` parses; ``charge[i]`` its charge [e]. Element counts are the rows
+    ``j`` with ``row[j] == i``, sorted by row and then by symbol (Python string order, as
+    :func:`parse_formula`'s ``elements`` are): ``symbols[sym[j]]`` with count ``count[j]``.
+    """
+
+    ok: np.ndarray
+    charge: np.ndarray
+    symbols: tuple
+    row: np.ndarray
+    sym: np.ndarray
+    count: np.ndarray
+
+    def elements(self, i: int) -> dict:
+        """{symbol: count} of text ``i`` (as ``parse_formula(text).elements``)."""
+        lo, hi = np.searchsorted(self.row, [i, i + 1])
+        return {self.symbols[s]: float(c) for s, c in zip(self.sym[lo:hi], self.count[lo:hi])}
+
+    def _sum(self, weight: np.ndarray) -> np.ndarray:
+        """Per text, ``weight`` summed left to right in symbol order (the order of a Python
+        ``sum`` over ``elements.items()``, so the floats are the same)."""
+        return np.bincount(self.row, weight, minlength=len(self.ok))
+
+    def n_atoms(self) -> np.ndarray:
+        """Atoms per formula unit, electrons not counted (:attr:`Formula.n_atoms`)."""
+        real = np.array([s != ELECTRON for s in self.symbols], bool)
+        return self._sum(np.where(real[self.sym], self.count, 0.0))
+
+    def molar_mass_g_mol(self) -> np.ndarray:
+        """Molar mass [g/mol] (:attr:`Formula.molar_mass_g_mol`, same arithmetic)."""
+        mass = np.array([0.0 if s == ELECTRON else _atomic_mass(s) for s in self.symbols])
+        return self._sum(mass[self.sym] * self.count) - self.charge * 5.48579909e-4
+
+
+def parse_formulas(texts) -> FormulaBatch:
+    """:func:`parse_formula` of every text at once; a text that does not parse has
+    ``ok = False`` (ask :func:`parse_formula` for the reason).
+
+    Formulas of the common shape (:data:`_BATCH_FORMULA`) are split into symbols and counts
+    with Arrow string kernels and summed with numpy; integer counts make the sums exact, so
+    the result equals the one-at-a-time parser's. Every other text (parentheses, adducts,
+    decimal counts, unusual charges, unknown symbols, all counts zero) goes through
+    :func:`parse_formula` itself.
+    """
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    texts = [t if isinstance(t, str) else None for t in texts]
+    n = len(texts)
+    ok = np.zeros(n, bool)
+    charge = np.zeros(n, np.int64)
+    arr = pa.array(texts, pa.string())
+    ext = pc.extract_regex(arr, _BATCH_FORMULA)
+    fast = pc.is_valid(ext).to_numpy(zero_copy_only=False) if n else np.zeros(0, bool)
+    rows_f = np.flatnonzero(fast)
+    parts_row, parts_sym, parts_cnt = [], [], []
+    sym_names: list[str] = []
+    if len(rows_f):
+        ext_f = ext.take(pa.array(rows_f))
+        sign = pc.struct_field(ext_f, "sign")
+        mag = pc.struct_field(ext_f, "n")
+        sign_len = pc.utf8_length(pc.fill_null(sign, "")).to_numpy(zero_copy_only=False)
+        mag_txt = np.asarray(mag.to_pylist(), dtype=object)
+        has_mag = pc.utf8_length(mag).to_numpy(zero_copy_only=False) > 0
+        # a magnitude needs exactly one sign (the general parser says why otherwise)
+        good = ~(has_mag & (sign_len != 1)) & (pc.utf8_length(mag).to_numpy(zero_copy_only=False) <= 9)
+        mag_val = np.where(has_mag, [int(m) if m else 0 for m in mag_txt], sign_len)
+        is_minus = pc.starts_with(pc.fill_null(sign, ""), "-").to_numpy(zero_copy_only=False)
+        z = np.where(is_minus, -mag_val, mag_val)
+        # one token per element: a space before every capital, split, then symbol and count
+        body = pc.struct_field(ext_f, "body")
+        tok_lists = pc.split_pattern(pc.utf8_ltrim_whitespace(
+            pc.replace_substring_regex(body, "([A-Z])", " \\1")), " ")
+        tok_row = pc.list_parent_indices(tok_lists).to_numpy(zero_copy_only=False)
+        toks = pc.list_flatten(tok_lists)
+        parts = pc.extract_regex(toks, r"^(?P<s>[A-Z][a-z]?)(?P<c>\d*)$")
+        sym_enc = pc.dictionary_encode(pc.struct_field(parts, "s"))
+        uniq = sym_enc.dictionary.to_pylist()
+        known = np.array([_is_element(s) for s in uniq], bool)
+        code = sym_enc.indices.to_numpy(zero_copy_only=False)
+        c_txt = pc.struct_field(parts, "c")
+        cnt = pc.cast(pc.if_else(pc.equal(c_txt, ""), "1", c_txt), pa.float64()).to_numpy(zero_copy_only=False)
+        # unknown symbols: the general parser raises the exact error
+        bad = np.zeros(len(rows_f), bool)
+        bad[tok_row[~known[code]]] = True
+        good &= ~bad
+        # symbols in Python string order; sum repeated symbols of one formula (exact: integers)
+        order_names = sorted(uniq)
+        rank = np.empty(len(uniq), np.int64)
+        rank[[uniq.index(s) for s in order_names]] = np.arange(len(uniq))
+        sym_names = order_names
+        keep = good[tok_row]
+        r_local, s_rank, c = tok_row[keep], rank[code[keep]], cnt[keep]
+        key = r_local * max(len(uniq), 1) + s_rank
+        ukey, inv = np.unique(key, return_inverse=True)
+        tot = np.bincount(inv.ravel(), c, minlength=len(ukey))
+        nz = tot != 0
+        u_row = ukey // max(len(uniq), 1)
+        has_any = np.zeros(len(rows_f), bool)
+        has_any[u_row[nz]] = True
+        good &= has_any               # every count zero: the general parser says "no elements"
+        sel = nz & good[u_row]
+        parts_row.append(rows_f[u_row[sel]])
+        parts_sym.append(ukey[sel] % max(len(uniq), 1))
+        parts_cnt.append(tot[sel])
+        ok[rows_f[good]] = True
+        charge[rows_f[good]] = z[good]
+    sym_index = {s: i for i, s in enumerate(sym_names)}
+    slow_row, slow_sym, slow_cnt = [], [], []
+    for i in np.flatnonzero(~ok):
+        t = texts[i]
+        if t is None:
+            continue
+        try:
+            items, z = _parse_formula_cached(t)
+        except FormulaError:
+            continue
+        ok[i] = True
+        charge[i] = z
+        for el, v in items:
+            if el not in sym_index:
+                sym_index[el] = len(sym_names)
+                sym_names.append(el)
+            slow_row.append(i)
+            slow_sym.append(sym_index[el])
+            slow_cnt.append(v)
+    row = np.concatenate(parts_row + [np.asarray(slow_row, np.int64)]).astype(np.int64)
+    sym = np.concatenate(parts_sym + [np.asarray(slow_sym, np.int64)]).astype(np.int64)
+    count = np.concatenate(parts_cnt + [np.asarray(slow_cnt, float)]).astype(float)
+    # the symbols in use, in one order (Python string order) for fast and slow rows alike
+    used = np.unique(sym)
+    final = sorted(sym_names[k] for k in used)
+    remap = np.zeros(len(sym_names), np.int64)
+    remap[used] = [final.index(sym_names[k]) for k in used]
+    sym = remap[sym]
+    order = np.lexsort((sym, row))
+    return FormulaBatch(ok=ok, charge=charge, symbols=tuple(final), row=row[order], sym=sym[order],
+                        count=count[order])
+
+
+def parse_keys(texts) -> tuple[np.ndarray, list, list, list]:
+    """:func:`parse_key` of many texts at once: ``(ok, formula, state, label)``, the last
+    three lists holding None where ``ok`` is False (ask :func:`parse_key` for the reason).
+
+    Printable-ASCII keys are split with one Arrow regular expression (the pattern of
+    :func:`parse_key`); a key that does not match there, or holds other characters (whose
+    whitespace rules could differ), goes through :func:`parse_key` itself."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    texts = [t if isinstance(t, str) else None for t in texts]
+    arr = pa.array(texts, pa.string())
+    ext = pc.extract_regex(arr, _KEY.pattern)
+    state = pc.struct_field(ext, "state")
+    printable = pc.match_substring_regex(arr, r"^[ -~]*$")
+    ok = pc.fill_null(pc.and_(pc.is_in(state, pa.array(STATES)), printable), False)
+    mask = ok
+    ok = ok.to_numpy(zero_copy_only=False).copy()
+    formula = pc.if_else(mask, pc.utf8_trim_whitespace(pc.struct_field(ext, "formula")), None).to_pylist()
+    label = pc.utf8_trim_whitespace(pc.struct_field(ext, "label"))
+    label = pc.if_else(pc.and_(mask, pc.greater(pc.utf8_length(label), 0)), label, None).to_pylist()
+    state = pc.if_else(mask, state, None).to_pylist()
+    for i in np.flatnonzero(~ok).tolist():
+        if texts[i] is None:
+            continue
+        try:
+            sk = parse_key(texts[i])
+        except FormulaError:
+            continue
+        ok[i] = True
+        formula[i], state[i], label[i] = sk.formula, sk.state, sk.label
+    return ok, formula, state, label

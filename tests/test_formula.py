@@ -137,3 +137,78 @@ def test_ion_molar_mass_counts_electrons():
         parse_formula("Na").molar_mass_g_mol - me, abs=1e-9)
     assert parse_formula("OH-").molar_mass_g_mol == pytest.approx(
         parse_formula("OH").molar_mass_g_mol + me, abs=1e-9)
+
+
+# ------------------------------------------------------------------ batch parsers
+# parse_formulas / parse_keys must equal the one-at-a-time parsers exactly (same element
+# counts, same floats of n_atoms and molar mass, same failures): the batch parsers feed the
+# same curated columns.
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+from pipeline.formula import parse_formulas, parse_keys  # noqa: E402
+
+_SYMBOLS = ["H", "He", "C", "N", "O", "Na", "Cl", "Co", "Fe", "S", "U", "Xx", "L", "e", "E"]
+_piece = st.one_of(
+    st.tuples(st.sampled_from(_SYMBOLS), st.sampled_from(["", "0", "1", "2", "12", "0.5", "1.25", "007"])
+              ).map("".join),
+    st.sampled_from(["(", ")", "(OH)2", "·5H2O", "*2", " ", "[", "]"]))
+_charge = st.sampled_from(["", "+", "-", "++", "--", "+2", "-3", "+-", "++2", "+0", "-12"])
+_formula_text = st.builds(lambda parts, z: "".join(parts) + z, st.lists(_piece, max_size=5), _charge)
+
+_CASES = ["H2O", "CO", "Co", "CH3CH2OH", "SO4-2", "OH-", "Fe+++", "Na+", "e-", "Ca(OH)2", "C1.5H3",
+          "CuSO4·5H2O", "Xx2", "C0", "C0H2", "CL2", " H2O", "Fe+3", "O3-", "C2-12", "H++2", "C0.1H2",
+          "C31H50N2O", "HHe2H3", "", "+", "K4[Fe(CN)6]"]
+
+
+def _one(text):
+    try:
+        f = parse_formula(text)
+    except FormulaError:
+        return None
+    return f.charge, f.elements, f.n_atoms, f.molar_mass_g_mol
+
+
+def _batch_rows(texts):
+    b = parse_formulas(texts)
+    n_atoms, mass = b.n_atoms(), b.molar_mass_g_mol()
+    return [(int(b.charge[i]), b.elements(i), float(n_atoms[i]), float(mass[i])) if b.ok[i] else None
+            for i in range(len(texts))]
+
+
+def test_parse_formulas_equals_parse_formula_on_known_cases():
+    assert _batch_rows(_CASES) == [_one(t) for t in _CASES]
+
+
+def test_parse_formulas_reports_failures():
+    b = parse_formulas(["H2O", "Xx2", None, "CL2"])
+    assert b.ok.tolist() == [True, False, False, False]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_formula_text, min_size=1, max_size=12))
+def test_parse_formulas_equals_parse_formula(texts):
+    assert _batch_rows(texts) == [_one(t) for t in texts]
+
+
+def _key_one(text):
+    try:
+        sk = parse_key(text)
+    except FormulaError:
+        return (False, None, None, None)
+    return (True, sk.formula, sk.state, sk.label)
+
+
+_key_text = st.builds(lambda pre, f, st_, lab, post: f"{pre}{f}({st_}{lab}){post}",
+                      st.sampled_from(["", " ", "\u00a0"]), _formula_text,
+                      st.sampled_from(["g", "l", "cr", "aq", "s", "G", ""]),
+                      st.sampled_from(["", ",graphite", ", a ", ",", ",(x)", ",\u00a0b"]),
+                      st.sampled_from(["", " ", "x", "\t"]))
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_key_text, min_size=1, max_size=12))
+def test_parse_keys_equals_parse_key(texts):
+    ok, formula, state, label = parse_keys(texts)
+    assert [(bool(o), f, s, lb) for o, f, s, lb in zip(ok, formula, state, label)] == \
+        [_key_one(t) for t in texts]

@@ -44,13 +44,19 @@ def reference_gas_atomicity(species: pd.DataFrame) -> dict[str, float]:
 
 
 def formation_delta_n(species: pd.DataFrame) -> pd.Series:
-    """Δn of gas in each species' formation reaction from its reference elements."""
+    """Δn of gas in each species' formation reaction from its reference elements.
+
+    Element counts come from the species' formulas, parsed at once (the same counts as its
+    ``elements_json``), and are summed in symbol order as a Python loop would."""
+    from ..formula import ELECTRON, parse_formulas
+
     atom = reference_gas_atomicity(species)
-    dn = []
-    for els, state in zip(species["elements_json"], species["state"]):
-        e = json.loads(els)
-        dn.append((1.0 if state == "g" else 0.0) - sum(n / atom[k] for k, n in e.items() if k in atom))
-    return pd.Series(dn, index=species["species"].to_numpy())
+    b = parse_formulas(species["formula"].to_numpy(object))
+    gaseous = np.array([s in atom and s != ELECTRON for s in b.symbols], bool)[b.sym]
+    atoms = np.array([atom.get(s, 1.0) for s in b.symbols])[b.sym]
+    total = np.bincount(b.row, np.where(gaseous, b.count / atoms, 0.0), minlength=len(species))
+    gas = (species["state"].to_numpy(object) == "g").astype(float)
+    return pd.Series(gas - total, index=species["species"].to_numpy())
 
 
 def standard_state(run) -> None:

@@ -26,7 +26,8 @@ import numpy as np
 import pandas as pd
 
 from ..equation import EquationError, parse_equation
-from ..formula import CACHE_SIZE, ELECTRON, FormulaError, parse_formula, parse_key
+from ..formula import (CACHE_SIZE, ELECTRON, FormulaError, SpeciesKey, parse_formula, parse_formulas, parse_key,
+                       parse_keys)
 from ..errors import InputError, UnitError
 from ..manifest import Source
 from ..units import column_factor, energy_unit_for, factor_to_si, is_dimensionless
@@ -57,17 +58,6 @@ def _parse(equation: str) -> tuple[str | None, str | None]:
 #: without spaces or '+' that does not start like a number.
 _FAST_TERM = r"^(?:(?P<c>\d+(?:\.\d+)?) )?(?P<k>[^\s+\d.][^\s+]*)$"
 _BALANCE_TOL = 1e-9     # the tolerance of pipeline.equation.parse_equation
-
-
-@lru_cache(maxsize=CACHE_SIZE)
-def _species(text: str):
-    """(key, {element: count}, charge) of a species key as written; None if it does not parse."""
-    try:
-        sk = parse_key(text)
-        f = parse_formula(sk.formula)
-    except FormulaError:
-        return None
-    return sk.key, {el: n for el, n in f.elements.items() if el != ELECTRON}, f.charge
 
 
 def _json_str(text: str) -> str:
@@ -118,26 +108,19 @@ def parse_equations(equations) -> list[tuple[str | None, str | None]]:
         keys = pc.dictionary_encode(pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "k"), ""))
         code = keys.indices.to_numpy(zero_copy_only=False)
         uniq = keys.dictionary.to_pylist()
-        info = [_species(k) if k else None for k in uniq]
-        parsed = np.array([i is not None for i in info], bool)
-        norm = np.array([i[0] if i else "" for i in info], dtype=object)
+        # every distinct key parsed at once (pipeline.formula's batch parsers)
+        key_ok, formula, state, label = parse_keys(uniq)
+        fb = parse_formulas([f if good else None for f, good in zip(formula, key_ok.tolist())])
+        parsed = key_ok & fb.ok
+        norm = np.array([SpeciesKey(f, st, lb).key if good else ""
+                         for f, st, lb, good in zip(formula, state, label, parsed.tolist())], dtype=object)
         # rank of each distinct normalised key in sorted order (json.dumps(sort_keys=True) order)
         norm_uniq, norm_code = np.unique(norm.astype(str), return_inverse=True)
         norm_code = norm_code.ravel()
-        el_index: dict[str, int] = {}
-        r_idx, c_idx, vals = [], [], []
-        for r, i in enumerate(info):
-            if i:
-                for el, v in i[1].items():
-                    r_idx.append(r)
-                    c_idx.append(el_index.setdefault(el, len(el_index)))
-                    vals.append(v)
-                if i[2]:
-                    r_idx.append(r)
-                    c_idx.append(-1)
-                    vals.append(i[2])
-        comp = np.zeros((len(uniq), len(el_index) + 1))     # element counts, then the charge
-        comp[np.asarray(r_idx, int), np.asarray(c_idx, int)] = vals
+        real = np.array([sym != ELECTRON for sym in fb.symbols], bool)[fb.sym]
+        comp = np.zeros((len(uniq), len(fb.symbols) + 1))     # element counts, then the charge
+        comp[fb.row[real], fb.sym[real]] = fb.count[real]
+        comp[:, -1] = fb.charge
         bad_row = ~ok_term | ~(coef > 0) | ~parsed[code]
         key_of_row = norm_code[code]
         pair = pd.DataFrame({"e": eq_of, "k": key_of_row})

@@ -16,7 +16,8 @@ import numpy as np
 import pandas as pd
 
 from ..findings import make_findings
-from ..formula import CACHE_SIZE, FormulaError, SpeciesKey, composition_key, parse_formula, parse_key, recase_name
+from ..formula import (CACHE_SIZE, ELECTRON, FormulaError, SpeciesKey, composition_key, parse_formula,
+                       parse_formulas, parse_key, parse_keys, recase_name)
 
 _SUFFIX = re.compile(r"^(?P<base>.+?)\((?P<suffix>[^()]*)\)$")
 _STATE_WORDS = {"g": "g", "l": "l", "liq": "l", "cr": "cr", "s": "cr", "c": "cr", "aq": "aq"}
@@ -155,7 +156,6 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
     parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
     checked: dict = {}          # (key, elements_json) → reason or None
     for rid, src, name, hint, state, label, ej, charge, built, built_ok, built_reason in zip(*cols.values()):
-        elements = _elements_of(ej, parsed_json)
         key = None
         for cand in (name, hint):
             if isinstance(cand, str) and cand.lower() in amap:
@@ -175,7 +175,7 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         elif key is built and isinstance(built_reason, str | type(None)):
             reason = checked[memo] = built_reason       # checked where the source was read
         else:
-            reason = checked[memo] = key_reason(key, elements)
+            reason = checked[memo] = key_reason(key, _elements_of(ej, parsed_json))
         keys.append(key)
         bad.append(reason is not None)
         reasons.append(reason)
@@ -212,18 +212,37 @@ def _formula_columns(formula: str) -> tuple:
 
 def formula_columns_of(keys) -> dict:
     """formula → :func:`_formula_columns` for the formulas of these species keys (those that
-    parse); computed where a source is read and handed to :func:`species_table`."""
-    out = {}
-    for key in set(keys):
-        if not isinstance(key, str):
-            continue
-        try:
-            formula = parse_key(key).formula
-            if formula not in out:
-                out[formula] = _formula_columns(formula)
-        except FormulaError:
-            continue
-    return out
+    parse); computed where a source is read and handed to :func:`species_table`.
+
+    All distinct formulas are parsed at once (:func:`pipeline.formula.parse_formulas`) and
+    their texts built with Arrow string kernels; the values equal :func:`_formula_columns`'s."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    distinct = [k for k in set(keys) if isinstance(k, str)]
+    ok, formula, _, _ = parse_keys(distinct)
+    formulas = sorted({f for f, good in zip(formula, ok.tolist()) if good})
+    b = parse_formulas(formulas)
+    if not b.ok.any():
+        return {}
+    real = np.array([s != ELECTRON for s in b.symbols], bool)[b.sym]
+    row, sym, count = b.row[real], b.sym[real], b.count[real]
+    # one text per distinct (symbol, count) pair, joined per formula in symbol order
+    values, value_code = np.unique(count, return_inverse=True)
+    pair, pair_code = np.unique(sym * len(values) + value_code.ravel(), return_inverse=True)
+    pair_code = pair_code.ravel()
+    names = [b.symbols[k] for k in (pair // len(values)).tolist()]
+    counts = values[pair % len(values)].tolist()
+    json_items = pa.array([f'"{k}": {v!r}' for k, v in zip(names, counts)], pa.string())
+    comp_items = pa.array([f"{k}{v:g}" for k, v in zip(names, counts)], pa.string())
+    offsets = pa.array(np.searchsorted(row, np.arange(len(formulas) + 1)).astype(np.int32))
+    codes = pa.array(pair_code)
+    ej = pc.binary_join(pa.ListArray.from_arrays(offsets, json_items.take(codes)), ", ").to_pylist()
+    comp = pc.binary_join(pa.ListArray.from_arrays(offsets, comp_items.take(codes)), "").to_pylist()
+    n_atoms, mass = b.n_atoms().tolist(), b.molar_mass_g_mol().tolist()
+    return {f: (z, "{" + e + "}", c + (f"{z:+d}" if z else ""), n, mm)
+            for f, good, z, e, c, n, mm in zip(formulas, b.ok.tolist(), b.charge.tolist(), ej, comp, n_atoms, mass)
+            if good}
 
 
 def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | None = None) -> pd.DataFrame:
@@ -240,9 +259,11 @@ def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | Non
     all_keys = sorted(set(keys) | set(meta.index))
     if not all_keys:
         return pd.DataFrame(columns=cols)
-    parts = [parse_key(k) for k in all_keys]
+    ok, formula, state, label = parse_keys(all_keys)
+    if not ok.all():
+        parse_key(all_keys[int(np.flatnonzero(~ok)[0])])       # raises the reason
     known = known or {}
-    derived = [known.get(sk.formula) or _formula_columns(sk.formula) for sk in parts]
+    derived = [known.get(f) or _formula_columns(f) for f in formula]
     charge, ej, comp, n_atoms, mm_calc = (list(c) for c in zip(*derived))
     n = len(all_keys)
     mm = np.full(n, np.nan)
@@ -262,8 +283,7 @@ def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | Non
     atoms = np.asarray(n_atoms, float)
     geo = np.where(pd.isna(geo) & (atoms == 1), "atom", geo).astype(object)
     geo[pd.isna(geo)] = None
-    rows = {"species": all_keys, "formula": [sk.formula for sk in parts], "state": [sk.state for sk in parts],
-            "label": [sk.label for sk in parts], "charge": charge, "elements_json": ej, "composition": comp,
+    rows = {"species": all_keys, "formula": formula, "state": state, "label": label, "charge": charge, "elements_json": ej, "composition": comp,
             "n_atoms": atoms, "molar_mass_g_mol": np.asarray(mm_calc, float), "stated_molar_mass_g_mol": mm,
             "reference_element": ref, "geometry": geo, "cas": cas, "aliases": aliases, "meta_source_id": msrc}
     return pd.DataFrame(rows, columns=cols)
