@@ -18,6 +18,7 @@ import re
 from pathlib import Path
 
 import numpy as np
+import pandas as pd
 
 from ..constants import R
 from ..errors import RecordError
@@ -96,11 +97,171 @@ def _is_number(text: str) -> bool:
         return False
 
 
+def _floats(fields: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fixed-width byte fields → (values, ok): ``float()`` of each field (padding ignored);
+    ``ok`` is False where that raises or gives a non-finite number."""
+    try:
+        values = fields.astype(float)
+    except ValueError:
+        values = np.full(len(fields), np.nan)
+        for k, f in enumerate(fields.tolist()):
+            try:
+                values[k] = float(f)
+            except ValueError:
+                pass
+    return values, np.isfinite(values)
+
+
+#: Read plain records with :func:`_parse_blocks` (False: every record by :func:`_parse_record`;
+#: the tests compare the two).
+BATCH = True
+
+
+def _no_columns(n: int) -> dict:
+    """The columns of :func:`_parse_blocks` for ``n`` records, none read yet."""
+    return {"ok": np.zeros(n, bool), "name": np.empty(n, object), "date_code": np.empty(n, object),
+            "state": np.empty(n, object), "elements_json": np.empty(n, object), "charge": np.zeros(n, np.int64),
+            "t_low": np.full(n, np.nan), "t_mid": np.full(n, np.nan), "t_high": np.full(n, np.nan),
+            "molar_mass": np.full(n, np.nan), "dfh": np.full(n, np.nan),
+            "lower": np.full((n, 7), np.nan), "upper": np.full((n, 7), np.nan)}
+
+
+def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
+    """:func:`_parse_record` of many records at once, with numpy on the bytes of their lines.
+
+    Returns columns (``name``, ``date_code``, ``state``, ``elements_json``, ``charge``,
+    ``t_low``, ``t_mid``, ``t_high``, ``molar_mass``, ``dfh``, ``lower``, ``upper``) and
+    ``ok``. Only records whose every field reads plainly are taken here — ASCII, plain reals,
+    letters for element symbols, nothing that :func:`_parse_record` would refuse or read by
+    a special rule (``D`` exponents in line 1 or in element counts, a fifth element that
+    repeats one of the first four). Every other record has ``ok = False`` and is left to
+    :func:`_parse_record`, which gives its exact values or the reason to reject it.
+    """
+    n = len(blocks)
+    cols = _no_columns(n)
+    if not n or not BATCH:
+        return cols
+    text = "".join(line[:80].ljust(80) for block in blocks for line in block)
+    if not (text.isascii() and text.isprintable()):
+        return cols                                  # the general parser reads such files
+    raw = np.frombuffer(text.encode("ascii"), np.uint8).reshape(n, 4, 80)
+
+    def field(k: int, start: int, stop: int, source=raw) -> np.ndarray:
+        """Columns start..stop (1-based) of line k (0-based) of every record, as bytes."""
+        return np.ascontiguousarray(source[:, k, start - 1:stop]).view(f"S{stop - start + 1}").ravel()
+
+    ok = np.ones(n, bool)
+    l1_name = [f.decode() for f in field(0, 1, 18).tolist()]
+    name = [t.split()[0] if t.strip() else "" for t in l1_name]
+    ok &= np.array([bool(t) for t in name], bool)
+    phase = np.array([f.decode().strip().upper() for f in field(0, 45, 45).tolist()], dtype=object)
+    ok &= np.isin(phase, list(PHASES))
+    # line 1 reals: no D exponents here (number() and _is_number() read those by other rules)
+    has_d = lambda f: np.char.count(f, b"D") + np.char.count(f, b"d") > 0   # noqa: E731
+    t_low, good = _floats(field(0, 46, 55))
+    ok &= good & ~has_d(field(0, 46, 55))
+    t_high, good = _floats(field(0, 56, 65))
+    ok &= good & ~has_d(field(0, 56, 65))
+    # element pairs: symbol (2) + count (3), four in 25-44, a fifth in 74-78 (classic layout)
+    pair_fields = [(field(0, 25 + 5 * p, 26 + 5 * p), field(0, 27 + 5 * p, 29 + 5 * p)) for p in range(4)]
+    molar_mass = np.full(n, np.nan)
+    if layout == "tm4513":
+        t_mid = np.full(n, 1000.0)
+        mm_f = field(0, 66, 78)
+        blank = np.char.strip(mm_f) == b""
+        mm, good = _floats(mm_f)
+        molar_mass = np.where(blank, np.nan, mm)
+        ok &= (good | blank) & ~has_d(mm_f)
+    else:
+        fifth = field(0, 74, 78)
+        with_fifth = (np.char.strip(fifth) != b"") & np.char.isalpha(np.char.strip(field(0, 74, 75)))
+        tmid_f = np.where(with_fifth, field(0, 66, 73).astype("S13"), field(0, 66, 78))
+        tm, good = _floats(tmid_f)
+        blank = np.char.strip(tmid_f) == b""
+        default = np.array([np.nan if d is None else d for d in defaults])
+        t_mid = np.where(good, tm, default)
+        # here: a finite real, or blank with a default; anything else (a D exponent, text that
+        # is not a number, nan) follows _parse_record's own rules
+        ok &= (good | blank) & ~has_d(tmid_f) & np.isfinite(t_mid)
+        pair_fields.append((field(0, 74, 75), field(0, 76, 78)))
+        with_fifth_col = with_fifth
+    # symbols and counts of every pair
+    k_pairs = len(pair_fields)
+    sym_txt = np.stack([np.char.strip(s_) for s_, _ in pair_fields], axis=1)          # (n, k) bytes
+    num_txt = np.stack([np.char.strip(c_) for _, c_ in pair_fields], axis=1)
+    if layout != "tm4513":
+        present = np.ones((n, k_pairs), bool)
+        present[:, -1] = with_fifth_col
+        sym_txt = np.where(present, sym_txt, b"")
+        num_txt = np.where(present, num_txt, b"")
+    counts, good = _floats(np.where(num_txt == b"", b"0", num_txt).ravel())
+    counts, good = counts.reshape(n, k_pairs), good.reshape(n, k_pairs)
+    no_sym = sym_txt == b""
+    ok &= ~(np.char.count(num_txt, b"D") + np.char.count(num_txt, b"d") > 0).any(axis=1)
+    ok &= good.all(axis=1)
+    ok &= ~(no_sym & (counts != 0)).any(axis=1)        # a count without a symbol
+    ok &= (np.char.isalpha(sym_txt) | no_sym).all(axis=1)
+    used = ~no_sym & (counts != 0)
+    ok &= used.any(axis=1)                             # "no elements in the formula field"
+    symbols = np.empty((n, k_pairs), object)
+    uniq = np.unique(sym_txt)
+    norm = {u: (u.decode()[:1].upper() + u.decode()[1:].lower()) for u in uniq.tolist()}
+    for u, v in norm.items():
+        symbols[sym_txt == u] = v
+    if layout != "tm4513":
+        # the fifth element replaces (dict.update) a repeat of the first four: general parser
+        repeat = np.zeros(n, bool)
+        for p in range(4):
+            repeat |= used[:, p] & used[:, -1] & (symbols[:, p] == symbols[:, -1])
+        ok &= ~repeat
+    ok &= (0 < t_low) & (t_low < t_mid) & (t_mid < t_high)
+    # coefficients: lines 2-4, D/d exponents read as E/e (as numbers() does)
+    coef_bytes = raw[:, 1:4, :75].copy()
+    coef_bytes[coef_bytes == ord("D")] = ord("E")
+    coef_bytes[coef_bytes == ord("d")] = ord("e")
+    vals = []
+    for k, count in ((1, 5), (2, 5), (3, 4)):
+        for f in range(count):
+            v, good = _floats(field(k - 1, 1 + 15 * f, 15 + 15 * f, source=coef_bytes))
+            ok &= good
+            vals.append(v)
+    vals = np.stack(vals, axis=1)                      # 14 values: line 2 (5), line 3 (5), line 4 (4)
+    dfh = np.full(n, np.nan)
+    if layout == "tm4513":
+        dfh_f = field(2, 61, 75, source=coef_bytes)
+        blank = np.char.strip(dfh_f) == b""
+        dfh_r, good = _floats(dfh_f)
+        ok &= good | blank
+        dfh = np.where(blank, np.nan, dfh_r) * R
+    # element counts → {symbol: count} summed in pair order; the electron gives the charge
+    idx = np.flatnonzero(ok)
+    ej = cols["elements_json"]
+    charge = cols["charge"]
+    for j in idx.tolist():
+        els: dict = {}
+        for p in range(k_pairs):
+            if used[j, p]:
+                sym = symbols[j, p]
+                els[sym] = els.get(sym, 0.0) + counts[j, p]
+        charge[j] = -int(round(els.pop("E", 0.0)))
+        ej[j] = json.dumps(els, sort_keys=True)
+    cols["ok"] = ok
+    cols["name"][idx] = np.array(name, dtype=object)[idx]
+    cols["date_code"][idx] = [f.decode().strip() for f in field(0, 19, 24)[idx].tolist()]
+    cols["state"][idx] = [PHASES[p] for p in phase[idx].tolist()]
+    cols["t_low"][idx], cols["t_mid"][idx], cols["t_high"][idx] = t_low[idx], t_mid[idx], t_high[idx]
+    cols["molar_mass"][idx], cols["dfh"][idx] = molar_mass[idx], dfh[idx]
+    cols["upper"][idx] = vals[idx][:, 0:7]
+    cols["lower"][idx] = vals[idx][:, 7:14]
+    return cols
+
+
 def read(path: Path, source: Source, rel: str) -> ReadResult:
     """Read one nasa7 file. ``rel`` is the path as reported (relative to raw/)."""
     text = path.read_bytes().decode("utf-8", errors="replace")
     lines = text.splitlines()
-    records, segments, rejected = [], [], []
+    rejected = []
+    blocks: list = []          # (first line index, the four lines, default T_common then)
     default_tmid: float | None = None
     seen: dict[str, int] = {}
     n_read = 0
@@ -150,11 +311,6 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
                            f"column 80), found {_line_number(nxt)!r}")
                 break
             block.append(nxt)
-        if problem is None:
-            try:
-                rec = _parse_record(block, default_tmid, source.nasa7_layout)
-            except RecordError as exc:
-                problem = str(exc)
         if problem is not None:
             rejected.append(rejected_row(source.id, rel, start + 1, "\n".join(block),
                                          f"{rel}:{start + 1}: nasa7 record: {problem} — fix: "
@@ -162,22 +318,51 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
             i += len(block)
             continue
         i += 4
-        rid = f"{source.id}/{rec['name']}"
+        blocks.append((start, block, default_tmid))
+    cols = _parse_blocks([b for _, b, _ in blocks], [d for _, _, d in blocks], source.nasa7_layout)
+    keep = np.ones(len(blocks), bool)
+    for j in np.flatnonzero(~cols["ok"]).tolist():      # the general parser: exact values or reason
+        start, block, tmid_default = blocks[j]
+        try:
+            rec = _parse_record(block, tmid_default, source.nasa7_layout)
+        except RecordError as exc:
+            keep[j] = False
+            rejected.append(rejected_row(source.id, rel, start + 1, "\n".join(block),
+                                         f"{rel}:{start + 1}: nasa7 record: {exc} — fix: "
+                                         "correct the record (columns per NASA TM-4513)"))
+            continue
+        rec["elements_json"] = json.dumps(rec["elements"], sort_keys=True)
+        for c in ("name", "date_code", "state", "elements_json", "charge", "t_low", "t_mid", "t_high",
+                  "molar_mass", "dfh"):
+            cols[c][j] = rec[c]
+        cols["lower"][j], cols["upper"][j] = rec["lower"], rec["upper"]
+    rejected.sort(key=lambda row: row["line"])
+    kept = np.flatnonzero(keep)
+    if not len(kept):
+        return ReadResult(n_read=n_read, rejected=frame(rejected, REJECTED_COLUMNS))
+    names = cols["name"][kept].tolist()
+    rids = []
+    for name in names:                      # a repeated name gets "#k" (k-th time in the file)
+        rid = f"{source.id}/{name}"
         seen[rid] = seen.get(rid, 0) + 1
-        if seen[rid] > 1:
-            rid += f"#{seen[rid]}"
-        records.append(dict(record_id=rid, source_id=source.id, name=rec["name"],
-                            species_hint=None, state=rec["state"], label=None,
-                            elements_json=json.dumps(rec["elements"], sort_keys=True),
-                            charge=rec["charge"], kind="polynomial", form="nasa7", file=rel,
-                            line=start + 1, t_low_k=rec["t_low"], t_high_k=rec["t_high"],
-                            stated_dfh_j_mol=rec["dfh"], stated_molar_mass_g_mol=rec["molar_mass"],
-                            date_code=rec["date_code"]))
-        for seg, (lo_t, hi_t, c) in enumerate(((rec["t_low"], rec["t_mid"], rec["lower"]),
-                                               (rec["t_mid"], rec["t_high"], rec["upper"]))):
-            coef = from_nasa7(np.array(c))
-            segments.append(dict(record_id=rid, segment=seg, t_low_k=lo_t, t_high_k=hi_t,
-                                 **dict(zip(COEF_COLUMNS, coef)), line=start + 1))
-    return ReadResult(n_read=n_read, records=frame(records, RECORD_COLUMNS),
-                      segments=frame(segments, SEGMENT_COLUMNS),
+        rids.append(rid if seen[rid] == 1 else f"{rid}#{seen[rid]}")
+    line = np.array([blocks[j][0] + 1 for j in kept.tolist()], np.int64)
+    n_rec = len(kept)
+    t_low, t_mid, t_high = (cols[c][kept].astype(float) for c in ("t_low", "t_mid", "t_high"))
+    obj = lambda v: np.array([v] * n_rec, dtype=object)     # noqa: E731
+    records = pd.DataFrame({
+        "record_id": np.array(rids, dtype=object), "source_id": obj(source.id), "name": np.array(names, dtype=object),
+        "species_hint": obj(None), "state": cols["state"][kept], "label": obj(None),
+        "elements_json": cols["elements_json"][kept], "charge": cols["charge"][kept].astype(np.int64),
+        "kind": obj("polynomial"), "form": obj("nasa7"), "file": obj(rel), "line": line,
+        "t_low_k": t_low, "t_high_k": t_high, "stated_dfh_j_mol": cols["dfh"][kept].astype(float),
+        "stated_molar_mass_g_mol": cols["molar_mass"][kept].astype(float),
+        "date_code": cols["date_code"][kept]}, columns=list(RECORD_COLUMNS))
+    # two segments per record, lower range first: canonical form (thermo.from_nasa7)
+    coef = from_nasa7(np.stack([cols["lower"][kept], cols["upper"][kept]], axis=1).reshape(2 * n_rec, 7))
+    seg = {"record_id": np.repeat(np.array(rids, dtype=object), 2), "segment": np.tile(np.arange(2, dtype=np.int64), n_rec),
+           "t_low_k": np.stack([t_low, t_mid], axis=1).ravel(), "t_high_k": np.stack([t_mid, t_high], axis=1).ravel()}
+    seg.update({c: coef[:, k] for k, c in enumerate(COEF_COLUMNS)})
+    seg["line"] = np.repeat(line, 2)
+    return ReadResult(n_read=n_read, records=records, segments=pd.DataFrame(seg, columns=list(SEGMENT_COLUMNS)),
                       rejected=frame(rejected, REJECTED_COLUMNS))
