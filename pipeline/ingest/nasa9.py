@@ -34,6 +34,8 @@ import math
 import re
 from pathlib import Path
 
+import numpy as np
+
 from ..errors import RecordError
 from ..manifest import Source
 from ..thermo import COEF_COLUMNS
@@ -150,11 +152,80 @@ def _parse_interval(tline: str, c1: str, c2: str, k: int) -> tuple[float, float,
     return t_lo, t_hi, a + b
 
 
+#: Read plain intervals with :func:`_plain_intervals` (False: every interval by
+#: :func:`_parse_interval`; the tests compare the two).
+BATCH = True
+
+
+def _plain_intervals(lines: list[str]) -> tuple[np.ndarray, np.ndarray]:
+    """Every line read as the T line of an interval, with numpy on the bytes of all lines:
+    ``(ok, values)``; ``values[j]`` = (T_low, T_high, a1..a7, b1, b2) of the interval whose T
+    line is ``lines[j]`` where ``ok[j]``.
+
+    ``ok`` only where :func:`_parse_interval` would return without error and read every
+    field plainly: printable ASCII, a plain real in every field (``D`` exponents of the
+    coefficients read as ``E``, as :func:`~pipeline.ingest.fortran.numbers` does), ``7`` in
+    column 23, the standard exponent text, blank columns 33-48, ascending positive
+    temperatures. Every other interval goes through :func:`_parse_interval`.
+    """
+    n = len(lines)
+    ok = np.zeros(n, bool)
+    values = np.full((n, 11), np.nan)
+    if n < 3 or not BATCH:
+        return ok, values
+    text = "".join(line[:80].ljust(80) for line in lines)
+    raw = np.frombuffer(text.encode("ascii", errors="replace"), np.uint8).reshape(n, 80)
+
+    def field(src: np.ndarray, start: int, stop: int) -> np.ndarray:
+        return np.ascontiguousarray(src[:, start - 1:stop]).view(f"S{stop - start + 1}").ravel()
+
+    # T lines: '7' in column 23 and the standard exponent text, then two more lines
+    cand = np.flatnonzero((field(raw, 23, 23) == b"7")
+                          & (field(raw, 24, 63) == _STANDARD_EXPONENT_TEXT.encode()))
+    cand = cand[cand < n - 2]
+    cand = cand[[all(lines[j + k].isascii() and lines[j + k].isprintable() for k in range(3))
+                 for j in cand.tolist()]]
+    if not len(cand):
+        return ok, values
+    t_rows = raw[cand]
+    coef = raw[np.concatenate([cand + 1, cand + 2])]
+    coef[coef == ord("D")] = ord("E")
+    coef[coef == ord("d")] = ord("e")
+    c1_rows, c2_rows = coef[:len(cand)], coef[len(cand):]
+
+    def reals(src: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, np.ndarray]:
+        f = field(src, start, stop)
+        try:
+            v = f.astype(float)
+        except ValueError:
+            v = np.full(len(f), np.nan)
+            for k, item in enumerate(f.tolist()):
+                try:
+                    v[k] = float(item)
+                except ValueError:
+                    pass
+        return v, np.isfinite(v)
+
+    t_lo, ok_lo = reals(t_rows, 1, 11)
+    t_hi, ok_hi = reals(t_rows, 12, 22)
+    c1 = [reals(c1_rows, a, b) for a, b in _SPANS_1]
+    c2 = [reals(c2_rows, a, b) for a, b in _SPANS_2]
+    good = (ok_lo & ok_hi & (0 < t_lo) & (t_lo < t_hi)
+            & np.logical_and.reduce([g for _, g in c1 + c2])
+            & (np.char.strip(field(c2_rows, 33, 48)) == b""))
+    ok[cand] = good
+    values[cand] = np.stack([t_lo, t_hi] + [v for v, _ in c1 + c2], axis=1)
+    return ok, values
+
+
 def read(path: Path, source: Source, rel: str) -> ReadResult:
     """Read one nasa9 file. ``rel`` is the path as reported (relative to raw/)."""
     text = path.read_bytes().decode("utf-8", errors="replace")
     lines = text.splitlines()
     n = len(lines)
+    plain_ok, plain_values = _plain_intervals(lines)
+    at = np.flatnonzero(plain_ok)
+    plain = dict(zip(at.tolist(), plain_values[at].tolist()))       # T-line index → its values
     records, segments, rejected, notes = [], [], [], []
     seen: dict[str, int] = {}
     n_read = 0
@@ -207,7 +278,11 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
                             end = n
                             break
                         try:
-                            segs.append(_parse_interval(lines[j], lines[j + 1], lines[j + 2], k))
+                            if j in plain:
+                                v = plain[j]
+                                segs.append((v[0], v[1], v[2:]))
+                            else:
+                                segs.append(_parse_interval(lines[j], lines[j + 1], lines[j + 2], k))
                         except RecordError as exc:
                             problem = (f"declares {head['n_int']} intervals but the next record "
                                        f"starts at line {j + 1} after {k}" if is_start(j)

@@ -12,7 +12,7 @@ from pipeline.constants import R
 from pipeline.ingest import nasa7
 from pipeline.thermo import COEF_COLUMNS, evaluate
 
-from .conftest import DATA, assert_accounted, source
+from .conftest import DATA, assert_accounted, assert_batch_equal, mutate_lines, source
 from .writers import nasa7_record
 
 
@@ -147,38 +147,8 @@ def test_malformed_record_through_the_cli(tmp_path):
 import dataclasses  # noqa: E402
 import random  # noqa: E402
 
-import pandas as pd  # noqa: E402
-
 _BASES = [(DATA / "mixed.nasa7").read_text(),
           (Path(__file__).resolve().parents[2] / "raw" / "tollbridge" / "tcl24_gases.nasa7").read_text()]
-_PIECES = list("0123456789 .-+EeDdXxGLSCHNOAr\t!é") + [
-    "", "  ", "nan", "inf", "1000.000", " 0.00", "CL  1", "E  -1", "    1", "  nan   ", " 1.0D+03"]
-
-
-def _mutate(text: str, rng: random.Random) -> str:
-    """A copy of ``text`` with a few random edits: characters put or inserted at random
-    places, lines cut short, extra lines (blank, comment, THERMO, default temperatures, END),
-    field-sized pieces placed on the temperature and element columns of line 1."""
-    lines = text.splitlines()
-    for _ in range(rng.randint(1, 6)):
-        i = rng.randrange(len(lines))
-        line = lines[i]
-        op = rng.random()
-        if op < 0.6 and line:
-            p, w = rng.randrange(len(line)), rng.choice(_PIECES)
-            line = line[:p] + w + line[p + len(w):] if rng.random() < 0.8 else line[:p] + w + line[p:]
-        elif op < 0.7:
-            line = line[:rng.randrange(max(len(line), 1))]
-        elif op < 0.8:
-            lines.insert(i, rng.choice(["", "! comment", "THERMO", "   300.000  1000.000  5000.000", "END"]))
-        elif op < 0.9:
-            p = rng.choice([24, 29, 45, 55, 65, 73, 78])
-            line = line[:p] + rng.choice([" " * 8, "   ", "1.0D+03 ", "AR  1", "C   2", "    1"]) + line[p + 5:]
-        else:
-            del lines[i]
-            continue
-        lines[i] = line
-    return "\n".join(lines) + "\n"
 
 
 @pytest.mark.parametrize("seed", range(4))
@@ -188,16 +158,7 @@ def test_batch_parser_equals_the_record_parser(tmp_path, seed):
     rng = random.Random(seed)
     path = tmp_path / "m.nasa7"
     for _ in range(30):
-        path.write_text(_mutate(rng.choice(_BASES), rng))
+        path.write_text(mutate_lines(rng.choice(_BASES), rng, (24, 29, 45, 55, 65, 73, 78)))
         for layout in ("classic", "tm4513"):
             src = dataclasses.replace(source("nasa7"), nasa7_layout=layout)
-            fast = nasa7.read(path, src, "x")
-            nasa7.BATCH = False
-            try:
-                general = nasa7.read(path, src, "x")
-            finally:
-                nasa7.BATCH = True
-            assert fast.n_read == general.n_read
-            for name in ("records", "segments", "rejected"):
-                pd.testing.assert_frame_equal(getattr(fast, name).reset_index(drop=True),
-                                              getattr(general, name).reset_index(drop=True), check_exact=True)
+            assert_batch_equal(nasa7, path, src)

@@ -126,3 +126,27 @@ def test_overlapping_intervals_rejected(tmp_path):
 ])
 def test_state_rules(name, flag, expected):
     assert nasa9.state_of(name, flag) == expected
+
+
+# ---------------------------------------------------- the batch parser equals the general one
+# nasa9._plain_intervals reads plain intervals with numpy; every interval it does not take
+# goes to _parse_interval. The two must give the same frames on any file.
+
+import random  # noqa: E402
+from pathlib import Path  # noqa: E402
+
+from .conftest import assert_batch_equal, mutate_lines  # noqa: E402
+
+_BASES = [(DATA / "small.nasa9").read_text(),
+          (Path(__file__).resolve().parents[2] / "raw" / "ellery" / "ellery87.nasa9").read_text()]
+
+
+@pytest.mark.parametrize("seed", range(4))
+def test_batch_parser_equals_the_interval_parser(tmp_path, seed):
+    """30 mutated files per seed: the frames and notes with the batch parser on and off are
+    identical (values, dtypes, rejected rows and their reasons)."""
+    rng = random.Random(seed)
+    path = tmp_path / "m.nasa9"
+    for _ in range(30):
+        path.write_text(mutate_lines(rng.choice(_BASES), rng, (0, 10, 11, 22, 23, 28, 32, 48, 50, 52, 64, 65)))
+        assert_batch_equal(nasa9, path, source("nasa9"))
