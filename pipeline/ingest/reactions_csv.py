@@ -221,30 +221,44 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
     is_e = energy
     uv = row_unit.where(row_unit != "", v_unit or manifest or "")
     uu = row_unit.where(row_unit != "", u_unit or v_unit or manifest or "")
+    # factors and verdicts per distinct unit text (a file holds a handful), then per row
+    uv_code, uv_text = pd.factorize(uv.to_numpy(object))
+    uu_code, uu_text = pd.factorize(uu.to_numpy(object))
+    ru_code, ru_text = pd.factorize(row_unit.to_numpy(object))
     fac: dict[str, float | str] = {}
-    for u in set(uv[is_e]) | set(uu[is_e]):
+    for u in set(uv_text[np.unique(uv_code[is_e])]) | set(uu_text[np.unique(uu_code[is_e])]):
         if u:
             try:
                 fac[u] = factor_to_si(u, "energy")
             except UnitError as exc:
                 fac[u] = str(exc)
-    fv = uv.map(lambda u: fac.get(u, np.nan))
-    fu = uu.map(lambda u: fac.get(u, np.nan))
-    fv_bad = fv.map(lambda x: isinstance(x, str)).to_numpy(dtype=bool)
-    fu_bad = fu.map(lambda x: isinstance(x, str)).to_numpy(dtype=bool)
-    unit_reason = np.select(
-        [is_log & ~row_unit.map(is_dimensionless).to_numpy(dtype=bool),
-         is_e & (uv == "").to_numpy(dtype=bool),
-         is_e & fv_bad, is_e & fu_bad],
-        [("unit " + row_unit.map(repr) + " on a log_k row: log K is dimensionless — fix: "
-          "leave the unit cell empty").to_numpy(),
-         "a value without a unit (empty 'unit' cell, no [unit] on 'value', no energy_unit in "
-         "the manifest) — fix: write the unit, e.g. kJ/mol",
-         ("unit of value: " + fv.astype(str) + " — fix: write e.g. kJ/mol or kcal/mol").to_numpy(),
-         ("unit of uncertainty: " + fu.astype(str) + " — fix: write e.g. kJ/mol or kcal/mol").to_numpy()],
-        default="")
-    f_val = np.where(is_log, 1.0, pd.to_numeric(fv.where(~fv_bad), errors="coerce").to_numpy(float))
-    f_unc = np.where(is_log, 1.0, pd.to_numeric(fu.where(~fu_bad), errors="coerce").to_numpy(float))
+
+    def per_row(texts, codes, f):
+        return np.array([f(t) for t in texts], dtype=object)[codes]
+
+    fv = per_row(uv_text, uv_code, lambda u: fac.get(u, np.nan))
+    fu = per_row(uu_text, uu_code, lambda u: fac.get(u, np.nan))
+    fv_bad = np.array([isinstance(x, str) for x in fv], bool)
+    fu_bad = np.array([isinstance(x, str) for x in fu], bool)
+    dimless = per_row(ru_text, ru_code, is_dimensionless).astype(bool)
+    empty_uv = (uv_text == "")[uv_code] if len(uv_code) else np.zeros(0, bool)
+    # the first reason that applies, built only for the rows it applies to
+    unit_reason = np.full(len(cells), "", dtype=object)
+    rules = [(is_log & ~dimless, lambda rows: [f"unit {u!r} on a log_k row: log K is dimensionless — fix: "
+                                               "leave the unit cell empty" for u in row_unit.to_numpy(object)[rows]]),
+             (is_e & empty_uv, lambda rows: "a value without a unit (empty 'unit' cell, no [unit] on 'value', no "
+                                            "energy_unit in the manifest) — fix: write the unit, e.g. kJ/mol"),
+             (is_e & fv_bad, lambda rows: [f"unit of value: {x} — fix: write e.g. kJ/mol or kcal/mol" for x in fv[rows]]),
+             (is_e & fu_bad, lambda rows: [f"unit of uncertainty: {x} — fix: write e.g. kJ/mol or kcal/mol"
+                                           for x in fu[rows]])]
+    taken = np.zeros(len(cells), bool)
+    for applies, reason in rules:
+        rows = applies & ~taken
+        if rows.any():
+            unit_reason[rows] = reason(rows)
+            taken |= rows
+    f_val = np.where(is_log, 1.0, pd.to_numeric(pd.Series(np.where(fv_bad, np.nan, fv)), errors="coerce").to_numpy(float))
+    f_unc = np.where(is_log, 1.0, pd.to_numeric(pd.Series(np.where(fu_bad, np.nan, fu)), errors="coerce").to_numpy(float))
     unit_si = np.where(is_log, "1", "J/mol")
     cf.reject(unit_reason != "", pd.Series(unit_reason, index=cells.index, dtype=object))
     ok = cf.ok
