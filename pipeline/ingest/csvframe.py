@@ -206,19 +206,31 @@ def _read_plain(path: Path):
     if quoted:
         idx = idx[~raw_blank[idx]]
         data = lines.take(pa.array(idx, pa.int64()))
+        # lines without a quote split at every comma; the others by a regular expression of
+        # exactly one field per header column (a quoted field or one without commas)
+        has_q = pc.match_substring(data, '"').to_numpy(zero_copy_only=False)
+        q_at, u_at = np.flatnonzero(has_q), np.flatnonzero(~has_q)
+        plain_lines = data.take(pa.array(u_at, pa.int64()))
+        if (pc.count_substring(plain_lines, ",").to_numpy(zero_copy_only=False) != width - 1).any():
+            return None
+        lst = pc.split_pattern(plain_lines, ",")
+        plain_cols = [pc.list_element(lst, j) for j in range(width)]
         field = '(?:"(?P<q{0}>[^"]*)"|(?P<u{0}>[^,"]*))'
-        ext = pc.extract_regex(data, "^" + ",".join(field.format(j) for j in range(width)) + "$")
+        ext = pc.extract_regex(data.take(pa.array(q_at, pa.int64())),
+                               "^" + ",".join(field.format(j) for j in range(width)) + "$")
         if ext.null_count:
             return None
-        cols = [pc.ascii_trim_whitespace(pc.binary_join_element_wise(
-            pc.struct_field(ext, f"q{j}"), pc.struct_field(ext, f"u{j}"), "")) for j in range(width)]
+        quoted_cols = [pc.binary_join_element_wise(pc.struct_field(ext, f"q{j}"), pc.struct_field(ext, f"u{j}"), "")
+                       for j in range(width)]
+        back = pa.array(np.argsort(np.concatenate([u_at, q_at]), kind="stable"), pa.int64())
+        untrimmed = [pa.concat_arrays([u.cast(pa.string()), q.cast(pa.string())]).take(back)
+                     for u, q in zip(plain_cols, quoted_cols)]
+        cols = [pc.ascii_trim_whitespace(c) for c in untrimmed]
         # blank (every field empty) or comment (first field starts with '#'), as csv sees them
         empty = np.ones(len(idx), bool)
         for c in cols:
             empty &= pc.equal(c, "").to_numpy(zero_copy_only=False)
-        first_val = pc.ascii_ltrim_whitespace(pc.binary_join_element_wise(
-            pc.struct_field(ext, "q0"), pc.struct_field(ext, "u0"), ""))
-        comment = pc.starts_with(first_val, "#").to_numpy(zero_copy_only=False)
+        comment = pc.starts_with(pc.ascii_ltrim_whitespace(untrimmed[0]), "#").to_numpy(zero_copy_only=False)
         keep = ~(empty | comment)
         mask = pa.array(keep)
         cols = [c.filter(mask) for c in cols]
