@@ -73,6 +73,85 @@ def _stoich_ok(text) -> bool:
             and all(isinstance(k, str) and _KEY_RE.match(k) for k in st))
 
 
+
+#: A JSON number as json.dumps writes it (no NaN or Infinity literals).
+_JSON_NUM = r"-?(?:0|[1-9][0-9]*)(?:\.[0-9]+)?(?:[eE][-+]?[0-9]+)?"
+
+
+def _json_maps(values, key: str, per_text) -> tuple[np.ndarray, np.ndarray, np.ndarray, list, np.ndarray]:
+    """The JSON maps ``{"k": number, ...}`` of ``values`` as json.dumps writes them
+    (printable ASCII, ``", "`` and ``": "`` separators, no escapes, no repeated key), split
+    with Arrow string kernels: ``(row, keys, numbers, slow, result)`` — one entry per item of
+    the texts read here, ``slow`` the positions of the other texts, for which ``result``
+    already holds ``per_text(text)`` (the one-at-a-time check)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    texts = [v if isinstance(v, str) else None for v in values]
+    arr = pa.array(texts, pa.string())
+    item = '"' + key + '": ' + _JSON_NUM
+    fast = pc.fill_null(pc.and_(pc.match_substring_regex(arr, r"^[ -\[\]-~]*$"),
+                                pc.match_substring_regex(arr, r"^\{" + item + "(?:, " + item + r")*\}$")), False)
+    fast = fast.to_numpy(zero_copy_only=False).copy()
+    at = np.flatnonzero(fast)
+    body = pc.utf8_slice_codeunits(arr.take(pa.array(at, pa.int64())), 2, -1)      # without '{"' and '}'
+    items = pc.split_pattern(body, ', "')
+    row = at[pc.list_parent_indices(items).to_numpy(zero_copy_only=False)]
+    parts = pc.split_pattern(pc.list_flatten(items), '": ', max_splits=1)
+    keys = pc.list_element(parts, 0)
+    numbers = pc.cast(pc.list_element(parts, 1), pa.float64()).to_numpy(zero_copy_only=False)
+    # a repeated key: json.loads keeps the last value only; the one-at-a-time check decides
+    repeated = np.zeros(len(texts), bool)
+    if len(row):
+        enc = pc.dictionary_encode(keys)
+        pair = np.sort(row.astype(np.int64) * max(len(enc.dictionary), 1)
+                       + enc.indices.to_numpy(zero_copy_only=False))
+        same = np.flatnonzero(pair[1:] == pair[:-1])
+        repeated[pair[same] // max(len(enc.dictionary), 1)] = True
+    keep = ~repeated[row]
+    result = np.zeros(len(texts), bool)
+    slow = np.flatnonzero(~fast | repeated)
+    result[slow] = [per_text(texts[i]) for i in slow.tolist()]
+    return row[keep], keys.filter(pa.array(keep)), numbers[keep], slow, result
+
+
+def _known_elements_all(s):
+    """:func:`_known_elements` of every value of ``s``, the plainly written ones at once."""
+    import pandas as pd
+
+    row, keys, numbers, _, result = _json_maps(s.to_numpy(object), "[^\"]*", _known_elements)
+    if len(row):
+        import pyarrow.compute as pc
+
+        enc = pc.dictionary_encode(keys)
+        known = np.array([_is_element(k) for k in enc.dictionary.to_pylist()], bool)
+        good = known[enc.indices.to_numpy(zero_copy_only=False)] & np.isfinite(numbers) & (numbers > 0)
+        result[row] = True
+        result[row[~good]] = False
+    return pd.Series(result, index=s.index)
+
+
+def _is_element(sym: str) -> bool:
+    try:
+        return periodictable.elements.symbol(sym).number != 0
+    except (ValueError, TypeError):
+        return False
+
+
+def _stoich_ok_all(s):
+    """:func:`_stoich_ok` of every value of ``s``, the plainly written ones at once."""
+    import pandas as pd
+    import pyarrow.compute as pc
+
+    row, keys, numbers, _, result = _json_maps(s.to_numpy(object), "[^\"]*", _stoich_ok)
+    if len(row):
+        good = (pc.match_substring_regex(keys, KEY_PATTERN).to_numpy(zero_copy_only=False)
+                & np.isfinite(numbers) & (numbers != 0))
+        result[row] = True
+        result[row[~good]] = False
+    return pd.Series(result, index=s.index)
+
+
 def _t(what: str, *, allow_zero=False, nullable=False, fix=_FIX_SOURCE) -> Column:
     low = (Check.ge(0.0, error="must be ≥ 0 K (absolute temperature)") if allow_zero
            else Check.gt(0.0, error="must be > 0 K (absolute temperature)"))
@@ -116,7 +195,7 @@ def _key(unique=False) -> Column:
 
 
 def _elements(nullable=False) -> Column:
-    return Column(None, Check(lambda s: s.map(_known_elements), error="must hold element symbols of "
+    return Column(None, Check(_known_elements_all, error="must hold element symbols of "
                                 "the periodic table with positive counts"),
                   nullable=nullable, description="element counts (JSON)",
                   metadata={"fix": "correct the element symbols of the formula (CL → Cl is read "
@@ -211,7 +290,7 @@ REACTIONS = DataFrameSchema(
     {
         "reaction_id": Column(str, [Check.str_length(min_value=1, error="must not be empty")], unique=True,
                               description="reaction id", metadata={"fix": "give every measurement a unique id"}),
-        "stoich_json": Column(None, Check(lambda s: s.map(_stoich_ok), error="must be a non-empty "
+        "stoich_json": Column(None, Check(_stoich_ok_all, error="must be a non-empty "
                                             "JSON map of species keys to non-zero coefficients"),
                               metadata={"fix": "correct the equation"}),
         "quantity": Column(str, Check.isin(["drh", "drg", "log_k"], error="must be drh, drg or log_k")),

@@ -136,3 +136,48 @@ def test_rejected_record_is_accounted_row_by_row(tmp_path):
     assert "row at line 3: schema table_points: column s_j_mol_k" in rej.loc[("t.csv", 2), "reason"]
     f = pd.concat(run.findings_parts)
     assert (f["check_id"] == "schema.rejected").sum() == 4
+
+
+# ------------------------------------------- JSON checks read at once equal one-at-a-time
+# schemas.staging reads plainly written element and stoichiometry maps with Arrow kernels;
+# the verdict must equal the one-text check on any text (repeated keys, escapes, NaN
+# literals, overflowing numbers, bad keys all decided one at a time).
+
+import json  # noqa: E402
+
+import pandas as pd  # noqa: E402
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from schemas.staging import _known_elements, _known_elements_all, _stoich_ok, _stoich_ok_all  # noqa: E402
+
+_KEYS = ["C", "H", "Xx", "c", "n", "", "é", "Na", "H2(g)", "C(cr,graphite)", "A(g, b)", "A(s)", "A(g,)",
+         "(g)", "x(g)(g)", 'q"(g)', "e-(aq)", "OH-(aq)"]
+_NUMBERS = st.one_of(st.sampled_from([0.0, -0.0, 1.0, -1.0, 2, 1e308, float("nan"), float("inf")]),
+                     st.floats(allow_nan=False, allow_infinity=False), st.integers(-5, 5))
+
+
+@st.composite
+def _json_map_text(draw) -> str:
+    items = draw(st.lists(st.tuples(st.sampled_from(_KEYS), _NUMBERS), max_size=4))
+    text = "{" + ", ".join(f"{json.dumps(k)}: {json.dumps(v)}" for k, v in items) + "}"
+    return draw(st.sampled_from([text, text.replace(", ", ","), text[:-1], "[1]", "x", text + " "]))
+
+
+@settings(max_examples=300, deadline=None, derandomize=True)
+@given(st.lists(st.one_of(_json_map_text(), st.none()), min_size=1, max_size=8))
+def test_json_checks_at_once_equal_one_at_a_time(texts):
+    s = pd.Series(texts, dtype=object)
+    assert list(_known_elements_all(s)) == [_known_elements(t) for t in texts]
+    assert list(_stoich_ok_all(s)) == [bool(_stoich_ok(t)) for t in texts]
+
+
+@pytest.mark.parametrize("texts,check_all,check_one", [
+    (['{"C": 1.0, "C": -2.0}', '{"C": -2.0, "C": 1.0}', '{"C": 1e999}', '{"C": 1e-400}', '{"C": NaN}',
+      '{"\\u00e9": 1}', '{"C":1.0}', '{"Na": 2, "Cl": 2}', '{"n": 1.0}', '{}'], _known_elements_all, _known_elements),
+    (['{"A(g)": 1.0, "A(g)": 0.0}', '{"A(g)": 0.0, "A(g)": 1.0}', '{"A(g)": -0.0}', '{"A(g,x, \\"y)": 1}',
+      '{"A(g)": 1e999}', '{"A(g,)": 1}', '{"A(g, b)": 2}', '{}'], _stoich_ok_all, _stoich_ok),
+])
+def test_json_checks_at_once_on_hard_cases(texts, check_all, check_one):
+    """Repeated keys (json.loads keeps the last), escapes, overflow and underflow, NaN."""
+    assert list(check_all(pd.Series(texts, dtype=object))) == [bool(check_one(t)) for t in texts]
