@@ -216,12 +216,17 @@ def formula_columns_of(keys) -> dict:
 
     All distinct formulas are parsed at once (:func:`pipeline.formula.parse_formulas`) and
     their texts built with Arrow string kernels; the values equal :func:`_formula_columns`'s."""
+    distinct = [k for k in set(keys) if isinstance(k, str)]
+    ok, formula, _, _ = parse_keys(distinct)
+    return _columns_of_formulas({f for f, good in zip(formula, ok.tolist()) if good})
+
+
+def _columns_of_formulas(formulas) -> dict:
+    """formula → :func:`_formula_columns` for every formula that parses, all at once."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    distinct = [k for k in set(keys) if isinstance(k, str)]
-    ok, formula, _, _ = parse_keys(distinct)
-    formulas = sorted({f for f, good in zip(formula, ok.tolist()) if good})
+    formulas = sorted(formulas)
     b = parse_formulas(formulas)
     if not b.ok.any():
         return {}
@@ -262,8 +267,9 @@ def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | Non
     ok, formula, state, label = parse_keys(all_keys)
     if not ok.all():
         parse_key(all_keys[int(np.flatnonzero(~ok)[0])])       # raises the reason
-    known = known or {}
-    derived = [known.get(f) or _formula_columns(f) for f in formula]
+    known = dict(known or {})
+    known.update(_columns_of_formulas({f for f in formula if f not in known}))
+    derived = [known.get(f) or _formula_columns(f) for f in formula]     # the latter raises the reason
     charge, ej, comp, n_atoms, mm_calc = (list(c) for c in zip(*derived))
     n = len(all_keys)
     mm = np.full(n, np.nan)
