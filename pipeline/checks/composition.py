@@ -1,8 +1,6 @@
 """Composition checks: stated molar masses against IUPAC standard atomic weights."""
 from __future__ import annotations
 
-import json
-
 import numpy as np
 import pandas as pd
 import periodictable
@@ -11,12 +9,6 @@ from ..findings import empty_findings, make_findings
 from ..formula import INTERVAL_ELEMENTS
 from .context import CheckContext
 from .registry import check
-
-
-def _element_counts(elements_json: pd.Series) -> pd.DataFrame:
-    """Wide frame of element counts (one column per element symbol, 0 where absent)."""
-    rows = [json.loads(s) if isinstance(s, str) and s else {} for s in elements_json]
-    return pd.DataFrame.from_records(rows, index=elements_json.index).fillna(0.0).astype(float)
 
 
 @check("composition.molar-mass", tolerances={"base_g_mol": 0.01, "per_interval_atom_g_mol": 0.01})
@@ -37,12 +29,11 @@ def composition_molar_mass(ctx: CheckContext) -> pd.DataFrame:
     if len(sp) == 0:
         return empty_findings()
     el = ctx.elements
-    counts = (el.pivot(index="species", columns="element", values="n")
-              .reindex(sp["species"].to_numpy(object)).fillna(0.0).astype(float))
-    counts.index = sp.index
-    interval_cols = [c for c in counts.columns if c in INTERVAL_ELEMENTS]
-    n_interval = counts[interval_cols].sum(axis=1) if interval_cols else pd.Series(0.0, index=sp.index)
-    base = sp[["species", "molar_mass_g_mol"]].assign(n_interval=n_interval.to_numpy(float))
+    # atoms of interval elements per species (long counts, summed per species)
+    pos = pd.Index(sp["species"].to_numpy(object)).get_indexer(el["species"].to_numpy(object))
+    interval = el["element"].isin(list(INTERVAL_ELEMENTS)).to_numpy() & (pos >= 0)
+    n_interval = np.bincount(pos[interval], el["n"].to_numpy(float)[interval], minlength=len(sp))
+    base = sp[["species", "molar_mass_g_mol"]].assign(n_interval=n_interval)
     parts = []
     stated_sp = pd.to_numeric(sp.get("stated_molar_mass_g_mol"), errors="coerce")
     if stated_sp is not None:
@@ -68,7 +59,9 @@ def composition_molar_mass(ctx: CheckContext) -> pd.DataFrame:
     sel = df.iloc[keep].reset_index(drop=True)
     d = diff[keep]
     # recognisable pattern: the difference is one atom of an element of the formula
-    counts_sel = counts.set_index(sp["species"]).reindex(sel["species"]).fillna(0.0)
+    counts_sel = (el[el["species"].isin(set(sel["species"]))]
+                  .pivot(index="species", columns="element", values="n")
+                  .reindex(sel["species"].to_numpy(object)).fillna(0.0).astype(float))
     hint = np.full(len(sel), "the stated mass or the formula is wrong (or uses outdated atomic weights)",
                    dtype=object)
     for el in counts_sel.columns:

@@ -5,7 +5,6 @@ segment index, exact Cp extrema per segment) are computed once and cached.
 """
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field
 from functools import cached_property
 
@@ -65,18 +64,18 @@ class CheckContext:
     @cached_property
     def elements(self) -> pd.DataFrame:
         """Element counts of every species, long: ``species, element, n`` (atoms per formula
-        unit, from ``elements_json``; electrons not included, zero counts dropped)."""
+        unit, the counts ``elements_json`` holds; electrons not included, zero counts dropped)."""
+        from ..formula import ELECTRON, parse_formulas
+
         sp = self.species
-        keys, els, ns = [], [], []
-        for key, j in zip(sp["species"].to_numpy(object), sp["elements_json"].to_numpy(object)):
-            if isinstance(j, str) and j:
-                for e, n in json.loads(j).items():
-                    keys.append(key)
-                    els.append(e)
-                    ns.append(float(n))
-        out = pd.DataFrame({"species": pd.Series(keys, dtype=object), "element": pd.Series(els, dtype=object),
-                            "n": np.asarray(ns, float)})
-        return out[out["n"] != 0].reset_index(drop=True)
+        # elements_json is written from the formula (ingest.resolve.species_table): the
+        # formulas parsed at once give the same counts, in the same (symbol) order
+        b = parse_formulas(sp["formula"].to_numpy(object))
+        keep = np.array([s != ELECTRON for s in b.symbols], bool)[b.sym] & (b.count != 0)
+        symbols = np.array(b.symbols, dtype=object)
+        return pd.DataFrame({"species": pd.Series(sp["species"].to_numpy(object)[b.row[keep]], dtype=object),
+                             "element": pd.Series(symbols[b.sym[keep]], dtype=object),
+                             "n": b.count[keep].astype(float)})
 
     @cached_property
     def seg_index(self) -> SegmentIndex:
