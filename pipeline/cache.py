@@ -25,6 +25,10 @@ Two levels, both keyed by SHA-256 digests of content (never by file times):
 
 The ``runs`` row of every run records in ``reuse_json`` what was reused:
 ``{"release": "<run id>"}`` or ``{"sources_reused": [...], "sources_read": [...]}``.
+
+Level 1 needs duckdb and the standard library only: ``thermoledger run`` first calls
+:func:`reuse_unchanged`, and imports the pipeline (pandas, scipy, the checks) only when the
+release cannot be reused.
 """
 from __future__ import annotations
 
@@ -33,9 +37,10 @@ import hashlib
 import json
 import os
 import shutil
+import time
+from dataclasses import dataclass, field
 from pathlib import Path
-
-import pandas as pd
+from typing import Callable
 
 CACHE_DIR = ".cache"
 #: Files of the code whose content is part of the tool fingerprint.
@@ -117,6 +122,45 @@ def run_key(run) -> str:
 
 # ------------------------------------------------------------------- level 1: the release
 
+def run_stamp() -> tuple[str, str]:
+    """``(started, run_id)`` of a run starting now: ISO 8601 UTC to the second, and the same
+    instant as a compact id (``20261202T143817Z``)."""
+    started = dt.datetime.now(dt.timezone.utc).isoformat(timespec="seconds")
+    return started, started.replace(":", "").replace("-", "").replace("+0000", "Z")
+
+
+class FindingColumns:
+    """A release's findings as columns of Python values, read with duckdb alone: what the
+    summary (:func:`pipeline.report.summary.summary_text`) and the exit code of a reused
+    release need. ``len(f)`` is the number of findings, ``f[name]`` one column (a list), in
+    the table's order."""
+
+    def __init__(self, columns: dict[str, list]):
+        self.columns = columns
+
+    @classmethod
+    def read(cls, con) -> "FindingColumns":
+        from .report.summary import COLUMNS
+
+        rows = con.execute(f"SELECT {', '.join(COLUMNS)} FROM findings").fetchall()
+        return cls({name: [r[i] for r in rows] for i, name in enumerate(COLUMNS)})
+
+    def __len__(self) -> int:
+        return len(self.columns["severity"])
+
+    def __getitem__(self, name: str) -> list:
+        return self.columns[name]
+
+
+def exit_code_of(findings, fail_on: str) -> int:
+    """:func:`pipeline.stages.exit_code` (the same rule) without pandas: ``findings`` is
+    anything with ``len`` and ``severity`` and ``waived`` columns (:class:`FindingColumns`)."""
+    if fail_on == "never" or findings is None or not len(findings):
+        return 0
+    levels = {"error": ("error",), "warning": ("error", "warning")}[fail_on]
+    return int(any(s in levels for s, w in zip(findings["severity"], findings["waived"]) if not bool(w)))
+
+
 def previous_run(out: Path) -> dict | None:
     """The last ``runs`` row of the current release (with ``cache_key``), or None."""
     import duckdb
@@ -133,12 +177,14 @@ def previous_run(out: Path) -> dict | None:
             "SELECT column_name FROM duckdb_columns() WHERE table_name = 'runs'").fetchall()}
         if "cache_key" not in cols:
             return None
-        df = con.execute("SELECT * FROM runs").df()
+        con.execute("SELECT * FROM runs")
+        names = [d[0] for d in con.description]
+        rows = con.fetchall()
     except duckdb.Error:
         return None
     finally:
         con.close()
-    return df.iloc[-1].to_dict() if len(df) else None
+    return dict(zip(names, rows[-1])) if rows else None
 
 
 def _link_or_copy(src: Path, dst: Path) -> None:
@@ -148,15 +194,17 @@ def _link_or_copy(src: Path, dst: Path) -> None:
         shutil.copy2(src, dst)
 
 
-def reuse_release(run, t0: float | None = None) -> bool:
+def reuse_release(run, t0: float | None = None, frames: bool = True) -> bool:
     """Level 1: when the run key equals the current release's, build the new release from it
-    (module doc) and return True; otherwise return False and change nothing."""
-    import time
+    (module doc) and return True; otherwise return False and change nothing.
 
+    ``run.findings`` (and ``run.extra["previous"]["findings"]``) become the release's
+    findings: a pandas frame as a full run leaves them (``frames=True``), or
+    :class:`FindingColumns` read without pandas (``frames=False``, :func:`reuse_unchanged`).
+    """
     import duckdb
 
-    from .curate import build_dir, remove_stale_builds
-    from .stages import exit_code
+    from .release import build_dir, remove_stale_builds
 
     t0 = time.perf_counter() if t0 is None else t0
 
@@ -179,26 +227,27 @@ def reuse_release(run, t0: float | None = None) -> bool:
                     _link_or_copy(p, bdir / sub / p.name)
     con = duckdb.connect(str(bdir / "thermo.duckdb"))
     try:
-        findings = con.execute("SELECT * FROM findings").df()
-        runs = con.execute("SELECT * FROM runs").df()
+        if frames:
+            findings = con.execute("SELECT * FROM findings").df()
+            findings["waived"] = findings["waived"].astype(bool)
+            run.extra["previous"] = {"findings": findings, "runs": con.execute("SELECT * FROM runs").df()}
+        else:
+            findings = FindingColumns.read(con)
+            run.extra["previous"] = {"findings": findings}
         counts = {t: con.execute(f'SELECT count(*) FROM "{t}"').fetchall()[0][0]
                   for t in ("species", "records", "segments", "table_points", "reactions", "rejected")}
-        findings["waived"] = findings["waived"].astype(bool)
         run.findings = findings
         run.counts.update(counts)
-        run.extra["previous"] = {"findings": findings, "runs": runs}
         run.extra["reused_release"] = str(prev["run_id"])
         run.extra["reuse"] = {"release": str(prev["run_id"])}
-        row = {c: None for c in runs.columns}
-        row.update(run_id=run.run_id, started_utc=run.started, tool_version=prev.get("tool_version"),
+        row = dict(run_id=run.run_id, started_utc=run.started, tool_version=prev.get("tool_version"),
                    database_name=prev.get("database_name"), input_hashes_json=prev.get("input_hashes_json"),
                    counts_json=prev.get("counts_json"),
                    seconds_json=json.dumps({"reuse": round(time.perf_counter() - t0, 4)}),
-                   exit_code=exit_code(findings, run.fail_on), cache_key=key,
+                   exit_code=exit_code_of(findings, run.fail_on), cache_key=key,
                    reuse_json=json.dumps(run.extra["reuse"]))
-        con.register("_row", pd.DataFrame([row]))
-        con.execute("INSERT INTO runs BY NAME SELECT * FROM _row")
-        con.unregister("_row")
+        # the other columns of ``runs`` (none today) stay NULL
+        con.execute(f"INSERT INTO runs ({', '.join(row)}) VALUES ({', '.join('?' * len(row))})", list(row.values()))
         con.execute("CHECKPOINT")
         if (bdir / "parquet").is_dir():
             con.execute(f"COPY runs TO '{(bdir / 'parquet' / 'runs.parquet').as_posix()}' (FORMAT parquet)")
@@ -235,6 +284,53 @@ def _refresh_reports(run, old: Path, new: Path) -> None:
         (new / "index.html").write_text(html, encoding="utf-8")
 
 
+@dataclass
+class ReleaseRun:
+    """What a reuse of the release reads and writes of a run: :class:`pipeline.stages.Run`
+    without the frames and stages, so that ``thermoledger run`` can reuse a release before it
+    imports pandas (:func:`reuse_unchanged`)."""
+
+    raw: Path
+    out: Path
+    config: object                      # pipeline.config.Config
+    waivers: Path | None = None
+    fail_on: str = "error"
+    progress: Callable[..., None] = lambda msg, done=None, total=None, stage=None: None
+    manifest: object = None             # pipeline.manifest.Manifest
+    run_id: str = ""
+    started: str = ""
+    findings: FindingColumns | None = None
+    counts: dict = field(default_factory=dict)
+    frames: dict = field(default_factory=dict)
+    extra: dict = field(default_factory=dict)
+
+    @property
+    def reused(self) -> bool:
+        return "release" in (self.extra.get("reuse") or {})
+
+
+def reuse_unchanged(raw: Path, out: Path, config, waivers: Path | None = None,
+                    fail_on: str = "error") -> ReleaseRun:
+    """Level 1 with duckdb and the standard library only: load the manifest, compute the run
+    key and, when it equals the current release's, reuse and publish that release.
+
+    Returns the run; ``run.reused`` says whether the release was reused. When it was not,
+    nothing was changed: the full pipeline runs next (and checks the key again), starting
+    from the source hashes computed here (``run.extra["hashes"]``).
+    """
+    from .manifest import load_manifest
+    from .release import publish
+
+    run = ReleaseRun(raw=raw, out=Path(out), config=config, waivers=waivers, fail_on=fail_on)
+    run.started, run.run_id = run_stamp()
+    t0 = time.perf_counter()
+    run.manifest = load_manifest(run.raw)
+    run.extra["cache_key"] = run_key(run)
+    if reuse_release(run, t0, frames=False):
+        publish(run)
+    return run
+
+
 # -------------------------------------------------------------- level 2: parsed sources
 
 def source_key(src, sha: str) -> str:
@@ -249,6 +345,8 @@ def _source_dir(out: Path, key: str) -> Path:
 
 def load_source(out: Path, key: str):
     """The cached :class:`~pipeline.ingest.base.ReadResult` of ``key``, or None."""
+    import pandas as pd
+
     from .ingest.base import ReadResult
 
     d = _source_dir(out, key)

@@ -10,7 +10,6 @@ import hashlib
 import time
 import traceback
 from dataclasses import dataclass, field
-from datetime import datetime, timezone
 from pathlib import Path
 from typing import Callable
 
@@ -320,8 +319,7 @@ def execute(run: Run) -> Run:
     from . import cache
     from .curate import publish
 
-    run.started = datetime.now(timezone.utc).isoformat(timespec="seconds")
-    run.run_id = run.started.replace(":", "").replace("-", "").replace("+0000", "Z")
+    run.started, run.run_id = cache.run_stamp()
     # unchanged inputs, configuration, waivers and tool: reuse the current release (cache.py)
     t0 = time.perf_counter()
     run.manifest = load_manifest(run.raw)

@@ -192,3 +192,43 @@ def test_a_source_that_fails_in_a_worker_raises_the_runs_own_error(tmp_path, mon
         _run(tmp_path, raw, tmp_path / "out")
     assert err.value.file == "a.csv" and err.value.line == 1
     assert "cp" in str(err.value) and "fix" in str(err.value)
+
+
+def test_reuse_without_pandas_gives_the_summary_and_exit_code_of_the_frames(database, tmp_path):
+    """``thermoledger run`` reuses a release through :func:`cache.reuse_unchanged`, which reads
+    the findings as plain columns (no pandas); the summary and the exit code must be those
+    of the same release read as pandas frames (:func:`execute`)."""
+    import re
+    import time
+
+    from pipeline.report.summary import summary_text
+    from pipeline.stages import exit_code
+
+    out = tmp_path / "curated"
+    first = _run(database, database / "raw", out)
+    framed = _run(database, database / "raw", out)                  # frames, as execute leaves them
+    assert isinstance(framed.findings, pd.DataFrame) and framed.extra["reuse"] == {"release": first.run_id}
+    time.sleep(1.1)                                                  # a new run id (to the second)
+    light = cache.reuse_unchanged(database / "raw", out, Config(), database / "waivers.toml")
+    assert light.reused and light.extra["reuse"] == {"release": framed.run_id}
+    assert isinstance(light.findings, cache.FindingColumns) and len(light.findings) == len(framed.findings)
+    assert light.counts == framed.counts
+
+    def ids(text):
+        return re.sub(r"\d{8}T\d{6}Z", "<run>", text)
+
+    for max_rows in (40, 3):
+        text = summary_text(light, max_rows)
+        assert ids(text) == ids(summary_text(framed, max_rows))
+        assert "since the previous run: 0 new, 0 no longer reported" in text
+    assert (out / "report" / "summary.txt").read_text(encoding="utf-8") == summary_text(light)
+    f = framed.findings
+    cases = [f, f.iloc[:0], f.assign(waived=True), f[f["severity"] != "error"], f[f["severity"] == "info"]]
+    for frame in cases:
+        columns = cache.FindingColumns({c: frame[c].tolist() for c in ("severity", "waived")})
+        for fail_on in ("error", "warning", "never"):
+            assert cache.exit_code_of(columns, fail_on) == exit_code(frame, fail_on), (fail_on, len(frame))
+    assert [exit_code(f, x) for x in ("error", "warning", "never")] == [1, 1, 0]   # the cases differ
+    runs = _tables(out)["runs"]
+    assert list(runs["exit_code"]) == [1, 1, 1] and runs["cache_key"].nunique() == 1
+    assert json.loads(runs["reuse_json"].iloc[-1]) == {"release": framed.run_id}

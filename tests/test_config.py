@@ -33,3 +33,13 @@ def test_bad_config_is_refused_with_its_key(tmp_path, text, match):
     with pytest.raises(ConfigError, match=match) as exc:
         Config.load(p)
     assert str(p) in str(exc.value)
+
+
+def test_the_written_out_ids_and_tolerances_are_the_registrys():
+    """Configuration and waivers files are validated against ``CHECK_TOLERANCES`` so that an
+    unchanged re-run need not import the checks; it must list exactly the registry's ids and
+    tolerance names (a new check or tolerance goes into both)."""
+    from pipeline.checks import registry
+    from pipeline.config import CHECK_TOLERANCES
+
+    assert {s.id: tuple(s.tolerances) for s in registry.all_specs()} == CHECK_TOLERANCES

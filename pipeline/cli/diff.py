@@ -11,12 +11,14 @@ from __future__ import annotations
 
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
-import numpy as np
-import pandas as pd
 import typer
 
 from .sql import open_read_only
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 #: duplicate.disagreement warning limits (checks.md): Cp relative, S [J/(mol*K)],
 #: H − H298 [J/mol], G [J/mol]. ``diff --config`` reads that check's overrides.
@@ -54,6 +56,9 @@ def _read(db: Path) -> dict[str, pd.DataFrame]:
 
 def compare(old: dict[str, pd.DataFrame], new: dict[str, pd.DataFrame], tol: dict | None = None) -> dict:
     """Differences of two releases' tables (see module doc)."""
+    import numpy as np
+    import pandas as pd
+
     tol = dict(TOLERANCES, **(tol or {}))
     so, sn = set(old["species"]["species"]), set(new["species"]["species"])
     po, pn = old["properties"], new["properties"]

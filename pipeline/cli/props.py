@@ -4,7 +4,6 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-import numpy as np
 import typer
 
 from .sql import Format, open_read_only, render
@@ -35,6 +34,8 @@ def props(
 ) -> None:
     """Cp, H, S, G, H − H298 and gef of one species (and ΔfH, ΔfG, log Kf where the
     elements' reference species exist), from the preferred record's segments."""
+    import numpy as np
+
     from ..properties import formation
     from ..thermo import COEF_COLUMNS, SegmentIndex
 

@@ -4,10 +4,12 @@ the build folder; ``curate.publish`` swaps them in with the rest of the release.
 from __future__ import annotations
 
 import json
-
-import pandas as pd
+from typing import TYPE_CHECKING
 
 from .summary import summary_text
+
+if TYPE_CHECKING:
+    import pandas as pd
 
 CAUTION = ("Caution: these data and checks support, but do not replace, licensed engineering "
            "judgement. Where results feed a safety decision (reactive hazards, energy release, "
@@ -34,6 +36,8 @@ def write_reports(run) -> None:
 
 
 def empty_report_findings() -> pd.DataFrame:
+    import pandas as pd
+
     from ..findings import FINDING_COLUMNS, empty_findings
 
     f = empty_findings()
