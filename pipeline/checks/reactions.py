@@ -575,8 +575,10 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
     dof = data − rank. Standardised residual t = r/(u √(1 − h)), h the leverage. While
     max |t| > 3 or χ² exceeds its upper 1 % point, the datum with the largest |t| is set
     aside (a warning each, with its residual before and after) and the component refitted.
-    A datum with h = 1 fixes a combination of species by itself and cannot be tested
-    (info). Species the network cannot determine keep their record value
+    Data the network cannot tell apart (|t| equal within 1e-6, e.g. the members of a
+    single cycle) are tied: a measurement goes before a stated ΔfH°, then the lowest
+    reaction id, and the warning names the others. A datum with h = 1 fixes a
+    combination of species by itself and cannot be tested (info). Species the network cannot determine keep their record value
     (determined = false in ``reconciled``). Large components are solved iteratively with
     randomised variance/leverage estimates (see :func:`pipeline.network.reconcile`).
     Tolerance: z_max = 3 (0.3 % false alarms per datum for normal errors) and the 1 %
@@ -615,8 +617,11 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
     h_rec = _evaluate(ctx, np.array([pref.get(s) for s in unknown], dtype=object), np.full(len(unknown), T_REF),
                       which=0)
     record_value = np.where(np.isfinite(h_rec), h_rec, prior)
+    # data the network cannot tell apart (equal |t|): the lowest reaction id is set aside first
+    rid_rank = np.empty(len(meas), dtype=np.int64)
+    rid_rank[np.argsort(meas["reaction_id"].astype(str).to_numpy(object), kind="stable")] = np.arange(len(meas))
     fit = nw.reconcile(A, meas["value"].to_numpy(float), meas["uncertainty"].to_numpy(float), prior, prior_sd,
-                       z_max=ctx.tol(cid, "z_max"), alpha=ctx.tol(cid, "chi2_alpha"))
+                       z_max=ctx.tol(cid, "z_max"), alpha=ctx.tol(cid, "chi2_alpha"), tie_rank=rid_rank)
 
     comp = fit.species_component
     chi2 = np.array([fit.chi2[c] for c in comp], float)

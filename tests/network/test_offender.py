@@ -110,3 +110,35 @@ def test_single_cycle_names_the_members_it_cannot_separate():
     others = {"a", "b", "c"} - {warn["subject"].iloc[0]}
     assert "equally suspect" in warn["message"].iloc[0]
     assert all(o in warn["message"].iloc[0].split("apart): ")[1] for o in others)
+
+
+_CYCLE = [("a", {C: -1, O2: -1, CO2: 1}, "drh", T_REF, -393.51e3, 0.13e3),
+          ("b", {"CO(g)": -1, O2: -0.5, CO2: 1}, "drh", T_REF, -283.0e3, 0.2e3),
+          ("c", {C: -1, O2: -0.5, "CO(g)": 1}, "drh", T_REF, -100.0e3, 0.2e3)]   # 10.5 kJ/mol off
+
+
+@pytest.mark.parametrize("order", [(0, 1, 2), (2, 1, 0), (1, 2, 0), (2, 0, 1)])
+def test_tied_data_are_set_aside_in_reaction_id_order(order):
+    """The three members of one cycle have the same |t| (up to round-off): whatever the row
+    order, the lowest reaction id is set aside and the other two are named."""
+    rows = [_CYCLE[i] for i in order]
+    f = network_worst_offender(network_context(rx=reactions(rows)))
+    warn = f[f["severity"] == "warning"]
+    assert list(warn["subject"]) == ["a"]
+    assert warn["message"].iloc[0].endswith("apart): b, c")
+
+
+@pytest.mark.parametrize("dense_max", [400, 0])
+def test_tie_rank_decides_between_tied_measurements(dense_max):
+    """Core fit (exact and iterative paths): of tied data, the lowest tie_rank goes first, and
+    the others are listed as tied with it."""
+    refs = {C, O2}
+    unknown = sorted({k for r in _CYCLE for k in r[1]} - refs)
+    A = np.array([[r[1].get(k, 0.0) for k in unknown] for r in _CYCLE])
+    v = np.array([r[4] for r in _CYCLE])
+    u = np.array([r[5] for r in _CYCLE])
+    none = np.full(len(unknown), np.nan)
+    for rank, first in (([0, 1, 2], 0), ([2, 0, 1], 1), ([1, 2, 0], 2)):
+        fit = nw.reconcile(A, v, u, none, none, dense_max=dense_max, tie_rank=np.array(rank))
+        assert [(e.kind, e.index) for e in fit.set_aside] == [("measurement", first)]
+        assert [i for _, i in fit.set_aside[0].tied] == sorted({0, 1, 2} - {first}, key=rank.__getitem__)
