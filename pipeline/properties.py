@@ -72,55 +72,115 @@ def in_range(t_low_k, t_high_k, t_k) -> np.ndarray:
     return (t >= lo - 1e-9) & (t <= np.asarray(t_high_k, float) + 1e-9)
 
 
+def _element_dicts(species: pd.DataFrame) -> list[dict]:
+    """``elements_json`` of every row as a dict ({} where it is not text)."""
+    texts = species["elements_json"].to_numpy(dtype=object)  # (not tolist(): one Python call per value)
+    all_text = set(map(type, texts)) <= {str}
+    is_text = [True] * len(texts) if all_text else [isinstance(ej, str) for ej in texts]
+    try:  # one parse of all the objects at once (each on its own if that does not fit)
+        parsed = json.loads("[" + ",".join(texts if all_text else (ej for ej, ok in zip(texts, is_text) if ok)) + "]")
+        if len(parsed) != sum(is_text) or not set(map(type, parsed)) <= {dict}:
+            raise ValueError("not one JSON object per species")
+        if all_text:
+            return parsed
+        parsed = iter(parsed)
+        return [next(parsed) if ok else {} for ok in is_text]
+    except ValueError:
+        return [json.loads(ej) if ok else {} for ej, ok in zip(texts, is_text)]
+
+
+def element_entries(species: pd.DataFrame) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Element entries of every row of ``species``, flat: ``(lens, names, counts)`` with
+    ``lens[i]`` the entries of row i and, row after row, their symbols (object array) and
+    counts (float) in the order of ``elements_json`` (zero counts left out), then the
+    electron ``e`` with count −charge for an ion.
+
+    The entries of all rows are gathered with a few list comprehensions and numpy; values
+    that are not plain numbers (a count written as text, a charge that is not a number)
+    take the value-by-value rule (``float(n)`` of each truthy ``n``, ``−float(z)`` of a
+    truthy charge), which gives the same entries.
+    """
+    dicts = _element_dicts(species)
+    charges = species["charge"].fillna(0).tolist()
+    n_raw = np.fromiter(map(len, dicts), dtype=np.intp, count=len(dicts))
+    names = np.array([el for d in dicts for el in d], dtype=object)
+    values = [n for d in dicts for n in d.values()]
+    if set(map(type, values)) <= {int, float, bool}:
+        try:
+            counts = np.array(values, dtype=float)
+        except OverflowError:  # an integer beyond float: float(n) raises alike
+            counts = np.array([float(n) for n in values], dtype=float)
+        keep = counts != 0                                    # the truthy counts (NaN is truthy)
+    else:
+        keep = np.array([bool(n) for n in values], dtype=bool)
+        counts = np.array([float(n) for n, k in zip(values, keep) if k], dtype=float)
+        full = np.zeros(len(values))
+        full[keep] = counts
+        counts = full
+    owner = np.repeat(np.arange(len(dicts)), n_raw)[keep]
+    names, counts = names[keep], counts[keep]
+    if set(map(type, charges)) <= {int, float, bool, np.int64, np.float64}:
+        z = np.asarray(charges, dtype=float)
+        ion = np.flatnonzero(z != 0)
+        e_counts = -z[ion]
+    else:
+        ion = np.array([i for i, v in enumerate(charges) if v], dtype=np.intp)
+        e_counts = np.array([-float(charges[i]) for i in ion], dtype=float)
+    if len(ion):  # the electron after the row's elements
+        order = np.argsort(np.concatenate([2 * owner, 2 * ion + 1]), kind="stable")
+        owner = np.concatenate([owner, ion])[order]
+        names = np.concatenate([names, np.full(len(ion), "e", dtype=object)])[order]
+        counts = np.concatenate([counts, e_counts])[order]
+    lens = np.bincount(owner, minlength=len(dicts)).astype(np.intp)
+    return lens, names, counts
+
+
 def _stoich_lists(species: pd.DataFrame) -> list[tuple[list[str], list[float]]]:
     """Per row of ``species``: element symbols and counts in the order of ``elements_json``
     (zero counts left out), then the electron ``e`` with count −charge for an ion."""
-    texts = species["elements_json"].tolist()
-    charges = species["charge"].fillna(0).tolist()
-    is_text = [isinstance(ej, str) for ej in texts]
-    try:  # one parse of all the objects at once (each on its own if that does not fit)
-        parsed = json.loads("[" + ",".join(ej for ej, ok in zip(texts, is_text) if ok) + "]")
-        if len(parsed) != sum(is_text) or not all(isinstance(d, dict) for d in parsed):
-            raise ValueError("not one JSON object per species")
-        parsed = iter(parsed)
-        dicts = [next(parsed) if ok else {} for ok in is_text]
-    except ValueError:
-        dicts = [json.loads(ej) if ok else {} for ej, ok in zip(texts, is_text)]
-    out = []
-    for els, z in zip(dicts, charges):
-        names = [el for el, n in els.items() if n]
-        counts = [float(n) for n in els.values() if n]
-        if z:
-            names.append("e")
-            counts.append(-float(z))
-        out.append((names, counts))
-    return out
+    lens, names, counts = element_entries(species)
+    bounds = np.concatenate([[0], np.cumsum(lens)]).tolist()
+    names, counts = names.tolist(), counts.tolist()
+    return [(names[a:b], counts[a:b]) for a, b in zip(bounds[:-1], bounds[1:])]
 
 
 def stoichiometry(species: pd.DataFrame) -> pd.DataFrame:
     """Long frame ``species, element, count`` from ``elements_json`` and ``charge``
     (the electron as element ``e`` with count −charge)."""
-    rows = [(key, el, n)
-            for key, (names, counts) in zip(species["species"].tolist(), _stoich_lists(species))
-            for el, n in zip(names, counts)]
-    return pd.DataFrame(rows, columns=["species", "element", "count"])
+    lens, names, counts = element_entries(species)
+    if not len(names):
+        return pd.DataFrame([], columns=["species", "element", "count"])
+    return pd.DataFrame({"species": np.repeat(species["species"].to_numpy(dtype=object), lens),
+                         "element": names, "count": counts}, columns=["species", "element", "count"])
 
 
-def element_references(species: pd.DataFrame) -> pd.DataFrame:
-    """``element, species, atoms`` — the reference species of each element (module doc)."""
-    keys_list = species["species"].tolist()
-    lists = _stoich_lists(species)
-    size: dict = {}  # stoichiometry entries per species key
-    for key, (names, _) in zip(keys_list, lists):
-        size[key] = size.get(key, 0) + len(names)
-    single = pd.DataFrame([(key, names[0], counts[0]) for key, (names, counts) in zip(keys_list, lists)
-                           if size[key] == 1 and names and names[0] != "e"], columns=["species", "element", "count"])
+def _take_entries(entries, rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The :func:`element_entries` of the rows at positions ``rows``."""
+    lens, names, counts = entries
+    first = np.cumsum(lens) - lens
+    take = lens[rows]
+    idx = np.repeat(first[rows] - (np.cumsum(take) - take), take) + np.arange(int(take.sum()))
+    return take, names[idx], counts[idx]
+
+
+def element_references(species: pd.DataFrame, entries=None) -> pd.DataFrame:
+    """``element, species, atoms`` — the reference species of each element (module doc).
+    ``entries``: :func:`element_entries` of ``species`` when already computed."""
+    keys_arr = species["species"].to_numpy(dtype=object)
+    lens, names, counts = entries if entries is not None else element_entries(species)
+    first = np.cumsum(lens) - lens                          # each row's first entry
+    code, _ = pd.factorize(keys_arr, use_na_sentinel=False)
+    size = np.bincount(code, weights=lens)[code]            # stoichiometry entries per species key
+    one = np.flatnonzero((size == 1) & (lens == 1))
+    one = one[names[first[one]] != "e"]
+    single = pd.DataFrame({"species": keys_arr[one], "element": names[first[one]], "count": counts[first[one]]},
+                          columns=["species", "element", "count"])
     flag = species.set_index("species")["reference_element"].astype("boolean").fillna(False).astype(bool)
     charge = species.set_index("species")["charge"].fillna(0)
     declared = single[single["species"].map(flag).fillna(False).astype(bool).to_numpy()
                       & (single["species"].map(charge) == 0).to_numpy()]
     refs = declared.rename(columns={"count": "atoms"})[["element", "species", "atoms"]]
-    keys = set(keys_list)
+    keys = set(keys_arr.tolist())
     extra = []
     for el, n in GASEOUS_REFERENCE_ATOMICITY.items():
         key = f"{el}{n if n > 1 else ''}(g)"
@@ -195,23 +255,36 @@ class _Stoichiometry:
 
     def __init__(self, elements: list[str], el: np.ndarray, count: np.ndarray, usable: np.ndarray):
         self.elements, self.el, self.count, self.usable = elements, el, count, usable
+        # the same terms flat, row after row (usable species only): n_terms[i] of species i
+        # starting at off[i] in el_flat / count_flat
+        has = (el >= 0) & usable[:, None]
+        self.n_terms = has.sum(axis=1).astype(np.intp)
+        self.off = np.cumsum(self.n_terms) - self.n_terms
+        self.el_flat, self.count_flat = el[has], count[has]
 
     @classmethod
-    def of(cls, species: pd.DataFrame, keys: np.ndarray, refs: pd.DataFrame) -> "_Stoichiometry":
+    def of(cls, species: pd.DataFrame, keys: np.ndarray, refs: pd.DataFrame, entries=None) -> "_Stoichiometry":
+        """The species ``keys`` (rows of ``species``, the first of a repeated key;
+        ``entries``: :func:`element_entries` of ``species`` when already computed)."""
         elements = sorted(set(refs["element"]))
-        code = {e: i for i, e in enumerate(elements)}
-        sp = species.drop_duplicates("species")
-        pos = pd.Index(sp["species"].to_numpy(dtype=object)).get_indexer(keys)
-        lists = _stoich_lists(sp.iloc[pos[pos >= 0]])
-        width = max((len(names) for names, _ in lists), default=0)
+        first = np.flatnonzero(~species["species"].duplicated(keep="first").to_numpy())
+        pos = pd.Index(species["species"].to_numpy(dtype=object)[first]).get_indexer(keys)
+        known = np.flatnonzero(pos >= 0)
+        rows = first[pos[known]]
+        lens, names, counts = (_take_entries(entries, rows) if entries is not None
+                               else element_entries(species.iloc[rows]))
+        width = int(lens.max()) if len(lens) else 0
+        ecode = pd.Index(elements, dtype=object).get_indexer(names) if len(names) else np.zeros(0, dtype=np.intp)
+        row = np.repeat(np.arange(len(lens)), lens)                     # parsed row of each entry
+        k = np.arange(len(names)) - np.repeat(np.cumsum(lens) - lens, lens)
+        ok_row = (lens > 0) & (np.bincount(row, weights=ecode < 0, minlength=len(lens)) == 0)
+        fill = ok_row[row]
         el = np.full((len(keys), width), -1, dtype=np.intp)
         count = np.zeros((len(keys), width))
         usable = np.zeros(len(keys), dtype=bool)
-        for i, (names, counts) in zip(np.flatnonzero(pos >= 0), lists):
-            if names and all(n in code for n in names):
-                usable[i] = True
-                el[i, :len(names)] = [code[n] for n in names]
-                count[i, :len(names)] = counts
+        usable[known] = ok_row
+        el[known[row[fill]], k[fill]] = ecode[fill]
+        count[known[row[fill]], k[fill]] = counts[fill]
         return cls(elements, el, count, usable)
 
     def rows_usable(self, code: np.ndarray) -> np.ndarray:
@@ -236,19 +309,110 @@ class _Stoichiometry:
 
     def any_nan_term(self, code: np.ndarray, tc: np.ndarray, per_atom: np.ndarray) -> bool:
         """Whether any real term of these rows is NaN (an element without a reference at T)."""
+        nan = np.isnan(per_atom)
+        if np.isfinite(self.count_flat).all() and (self.count_flat != 0).all():
+            # a finite non-zero count times a number or ±inf is never NaN: a term is NaN
+            # exactly where its reference value is; with the species' elements and each T's
+            # NaN elements as bit sets, a row has a NaN term where the two intersect
+            if not nan.any():
+                return False
+            if len(self.elements) <= 63:
+                bit = np.left_shift(np.int64(1), np.arange(len(self.elements), dtype=np.int64))
+                species_bits = np.bitwise_or.reduce(np.where(self.el >= 0, bit[np.maximum(self.el, 0)], 0), axis=1) \
+                    if self.el.shape[1] else np.zeros(len(self.el), dtype=np.int64)
+                t_bits = (nan * bit[:, None]).sum(axis=0)
+                ok = self.rows_usable(code)
+                return bool((species_bits[code[ok]] & t_bits[tc[ok]]).any())
         val, has = self.terms(code, tc, per_atom)
         return bool((has & np.isnan(val)).any())
+
+    def plain_sums(self, code: np.ndarray, tc: np.ndarray,
+                   per_atom: tuple[np.ndarray, ...]) -> tuple[list[np.ndarray], list[np.ndarray]]:
+        """:func:`_row_sums` with ``plain`` of the terms of each table in ``per_atom`` (the
+        same sums, bit for bit): the rows' real terms gathered flat, row after row (the
+        order of ``val[has]``), and added per row with ``numpy.add.reduceat``. Returns the
+        sums and, per table, the rows with a NaN term."""
+        ok = self.rows_usable(code)
+        c = np.where(ok, code, 0)
+        nt = np.where(ok, self.n_terms[c] if len(self.n_terms) else 0, 0)
+        total = int(nt.sum())
+        start = np.cumsum(nt) - nt
+        rows = nt > 0
+        term = np.repeat(self.off[c] - start, nt) + np.arange(total)
+        cnt = self.count_flat[term]
+        idx = self.el_flat[term] * per_atom[0].shape[1] + np.repeat(tc, nt)
+        del term
+        sums, bads = [], []
+        for table in per_atom:
+            with np.errstate(invalid="ignore", over="ignore"):
+                v = cnt * np.ravel(table)[idx]
+            out = np.zeros(len(code))
+            if total:
+                out[rows] = np.add.reduceat(v, start[rows])
+            bad = np.zeros(len(code), dtype=bool)
+            nan = np.isnan(v)
+            if nan.any():
+                bad[np.repeat(np.arange(len(code)), nt)[nan]] = True
+            sums.append(out)
+            bads.append(bad)
+        return sums, bads
+
+    def compensated_sums(self, code: np.ndarray, tc: np.ndarray,
+                         per_atom: tuple[np.ndarray, ...]) -> tuple[list[np.ndarray], list[np.ndarray]]:
+        """:func:`_row_sums` without ``plain`` (the compensated sum, term by term, NaN terms
+        skipped) of the terms of each table in ``per_atom``: the rows' sums and, per table,
+        the rows with a NaN term. The sums of rows without a NaN term are those of
+        :func:`_row_sums` bit for bit (a row with one is NaN to its caller, whatever its
+        sum). The rows are taken in order of decreasing term count, so that the rows with a
+        k-th term are a leading slice: element column k is gathered and added for them
+        alone, without per-column gathers and scatters of the running sums."""
+        ok = self.rows_usable(code)
+        c = np.where(ok, code, 0)
+        nt = np.where(ok, self.n_terms[c] if len(self.n_terms) else 0, 0)
+        n = len(code)
+        order = np.argsort(-nt, kind="stable")
+        c, tcs = c[order], tc[order]
+        hist = np.bincount(nt, minlength=self.el.shape[1] + 1)
+        m = hist[::-1].cumsum()[::-1][1:]                                 # m[k]: rows with a k-th term
+        sums = [np.zeros(n) for _ in per_atom]
+        comps = [np.zeros(n) for _ in per_atom]
+        bads = [np.zeros(n, dtype=bool) for _ in per_atom]
+        n_t = per_atom[0].shape[1] if per_atom else 0
+        for k in range(self.el.shape[1]):
+            r = int(m[k])
+            if not r:
+                break
+            ck = c[:r]
+            cnt = self.count[:, k][ck]
+            idx = self.el[:, k][ck] * n_t + tcs[:r]
+            for table, total, comp, bad in zip(per_atom, sums, comps, bads):
+                tot, cmp = total[:r], comp[:r]
+                with np.errstate(invalid="ignore", over="ignore"):
+                    v = cnt * np.ravel(table)[idx]
+                    bad[:r] |= np.isnan(v)
+                    y = v - cmp
+                    s = tot + y
+                    cc = (s - tot) - y
+                cc[~np.isfinite(cc)] = 0.0  # an infinite term: keep the infinite sum (as pandas does)
+                tot[...] = s
+                cmp[...] = cc
+        back = np.empty_like(order)
+        back[order] = np.arange(n)
+        return [x[back] for x in sums], [b[back] for b in bads]
 
     def formation(self, code: np.ndarray, t: np.ndarray, h: np.ndarray, g: np.ndarray, tc: np.ndarray,
                   ref_h: np.ndarray, ref_g: np.ndarray, plain: list[bool]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """ΔfH, ΔfG [J/mol], log Kf [1] of rows (species ``code`` into this list, −1 unknown;
         T [K] with codes ``tc``; H, G [J/mol]); ``ref_h``, ``ref_g`` from :func:`reference_atoms`;
         ``plain`` (for H, for G): the summation rule of :func:`_row_sums`."""
-        val, has = self.terms(code, tc, ref_h)
-        sh, bad_h = _row_sums(val, has, plain[0])
-        val, has = self.terms(code, tc, ref_g)
-        sg, bad_g = _row_sums(val, has, plain[1])
-        del val, has
+        flat = [i for i in (0, 1) if plain[i]]
+        got, bads = self.plain_sums(code, tc, tuple((ref_h, ref_g)[i] for i in flat)) if flat else ([], [])
+        sums = {i: (x, b) for i, x, b in zip(flat, got, bads)}
+        rest = [i for i in (0, 1) if not plain[i]]
+        if rest:  # a compensated sum term by term (_row_sums)
+            got, bads = self.compensated_sums(code, tc, tuple((ref_h, ref_g)[i] for i in rest))
+            sums.update({i: (x, b) for i, x, b in zip(rest, got, bads)})
+        (sh, bad_h), (sg, bad_g) = sums[0], sums[1]
         missing = ~self.rows_usable(code) | bad_h | bad_g
         sh[missing] = np.nan
         sg[missing] = np.nan
@@ -306,7 +470,7 @@ def _text_take(col: pd.Series, idx: np.ndarray):
 
 def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: pd.DataFrame,
                        functions, table_points: pd.DataFrame | None = None,
-                       refs: pd.DataFrame | None = None) -> pd.DataFrame:
+                       refs: pd.DataFrame | None = None, entries=None) -> pd.DataFrame:
     """The ``properties`` table: every species' preferred record on its standard grid.
 
     Parameters
@@ -317,6 +481,7 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
     functions : :class:`~pipeline.functions.RecordFunctions` over the records.
     table_points : tabulated rows, for ΔfH/ΔfG/log Kf a table gives where H is not absolute.
     refs : :func:`element_references` of ``species`` when already computed.
+    entries : :func:`element_entries` of ``species`` when already computed.
 
     Rows are sorted by species and T. The grid is evaluated in blocks of
     :data:`BLOCK_ROWS` rows; formation values come from each species' element counts (padded
@@ -337,7 +502,7 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
     col = {c: np.full(n, np.nan) for c in names}
 
     if refs is None:
-        refs = element_references(species)
+        refs = element_references(species, entries)
     ref_rec = preferred.set_index("species")["preferred_record_id"]
     refs = refs[refs["species"].isin(ref_rec.dropna().index)]
     rng = records.set_index("record_id")[["t_low_k", "t_high_k"]]
@@ -348,7 +513,7 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
         ok = in_range(rng.loc[rids, "t_low_k"].to_numpy(float), rng.loc[rids, "t_high_k"].to_numpy(float), temps)
         return np.where(ok, vv.h, np.nan), np.where(ok, vv.g, np.nan)
 
-    st = _Stoichiometry.of(species, pr["species"].to_numpy(dtype=object), refs) if len(refs) else None
+    st = _Stoichiometry.of(species, pr["species"].to_numpy(dtype=object), refs, entries) if len(refs) else None
     with_formation = st is not None and n > 0 and bool(st.usable.any())
     if with_formation:
         temps = np.unique(t)

@@ -68,7 +68,9 @@ a finding.
 """
 from __future__ import annotations
 
+import contextlib
 import math
+import os
 from dataclasses import dataclass
 from typing import Callable
 
@@ -644,6 +646,59 @@ def _lawson_shared(sr: _SharedRange, b, d, tj, iterations):
     return sr.canonical(ops, y)
 
 
+def _blas_thread_controls() -> list:
+    """(set, get) functions of the thread count of each OpenBLAS library loaded in this
+    process (numpy's and scipy's wheels each bring one), found through ``/proc/self/maps``
+    and ``ctypes``; empty where that is not available (another OS or BLAS)."""
+    import ctypes
+
+    try:
+        with open("/proc/self/maps") as fh:
+            paths = sorted({line.split()[-1] for line in fh if "openblas" in line.lower() and "/" in line})
+    except OSError:
+        return []
+    controls = []
+    for path in paths:
+        try:
+            lib = ctypes.CDLL(path, mode=getattr(os, "RTLD_NOLOAD", 0) | ctypes.RTLD_LOCAL)
+        except OSError:
+            continue
+        for prefix in ("scipy_openblas_", "openblas_"):
+            for suffix in ("64_", ""):
+                set_ = getattr(lib, f"{prefix}set_num_threads{suffix}", None)
+                get_ = getattr(lib, f"{prefix}get_num_threads{suffix}", None)
+                if set_ is not None and get_ is not None:
+                    set_.argtypes, set_.restype, get_.restype = [ctypes.c_int], None, ctypes.c_int
+                    controls.append((set_, get_))
+                    break
+            else:
+                continue
+            break
+    return controls
+
+
+@contextlib.contextmanager
+def single_threaded_blas():
+    """Run the enclosed code with OpenBLAS on one thread, then restore its thread counts.
+
+    The refits multiply many small matrices (at most 512 × 192 by 192 × 91): OpenBLAS
+    splits each product over its threads, which costs more than it saves at these sizes
+    and, on a machine whose cores are busy, makes the threads wait for one another (the
+    emit stage's refits took 6× longer on 2 busy cores). One thread also makes the fitted
+    coefficients independent of the machine's core count (a threaded product may add its
+    terms in another order, which changes the last bit).
+    """
+    controls = _blas_thread_controls()
+    before = [get() for _, get in controls]
+    for set_, _ in controls:
+        set_(1)
+    try:
+        yield
+    finally:
+        for (set_, _), n in zip(controls, before):
+            set_(n)
+
+
 def refit(items: pd.DataFrame, values: ValuesFn, form: str, *, n_samples: int = N_SAMPLES,
           n_check: int = N_CHECK, t_fit_min_k: float = T_FIT_MIN_K) -> Refit:
     """Fit two-range ``form`` polynomials to the functions of each item.
@@ -659,9 +714,18 @@ def refit(items: pd.DataFrame, values: ValuesFn, form: str, *, n_samples: int = 
     -------
     Refit
         Segments (record id as given) and the residuals of the chosen fit.
+
+    BLAS runs on one thread meanwhile (:func:`single_threaded_blas`).
     """
     if form not in FORM_TERMS:
         raise ValueError(f"unknown form {form!r}; expected one of {sorted(FORM_TERMS)}")
+    with single_threaded_blas():
+        return _refit(items, values, form, n_samples, n_check, t_fit_min_k)
+
+
+def _refit(items: pd.DataFrame, values: ValuesFn, form: str, n_samples: int, n_check: int,
+           t_fit_min_k: float) -> Refit:
+    """:func:`refit` (its arguments checked)."""
     terms = np.array(FORM_TERMS[form])
     rid = items["record_id"].to_numpy(dtype=object)
     hi = items["t_high_k"].to_numpy(float)

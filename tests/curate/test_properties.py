@@ -157,3 +157,96 @@ def test_properties_do_not_depend_on_the_evaluation_block_size(release, monkeypa
                                       RecordFunctions(f["records"], f["segments"], f["table_points"]), f["table_points"])
     assert len(whole) > 7 and whole["dfh_j_mol"].notna().any()
     pd.testing.assert_frame_equal(blocks, whole, check_exact=True)
+
+
+def _entries_by_definition(species):
+    """Per row: the symbols and counts of ``elements_json`` in its order with the zero
+    counts left out, then the electron with −charge for an ion — written out row by row."""
+    out = []
+    for ej, z in zip(species["elements_json"], species["charge"].fillna(0)):
+        els = json.loads(ej) if isinstance(ej, str) else {}
+        names = [el for el, n in els.items() if n]
+        counts = [float(n) for n in els.values() if n]
+        if z:
+            names.append("e")
+            counts.append(-float(z))
+        out.append((names, counts))
+    return out
+
+
+@pytest.mark.parametrize("case", ["plain", "odd"])
+def test_element_entries_follow_their_definition(case):
+    """The batch parse of ``elements_json`` gives each row's symbols and counts as the
+    row-by-row definition does: zero counts left out, the electron last for ions, a count
+    written as text or a missing ``elements_json`` handled alike."""
+    from pipeline.properties import element_entries
+
+    rng = np.random.default_rng(5)
+    els = ["C", "H", "N", "O", "Cl", "Fe"]
+    def counts(i):
+        return {e: float(rng.integers(0, 5)) if i % 3 else int(rng.integers(0, 5))
+                for e in rng.permutation(els)[:rng.integers(0, 5)]}
+
+    rows = [dict(species=f"X{i}(g)", elements_json=json.dumps(counts(i)),
+                 charge=int(rng.integers(-2, 3)) if i % 4 == 0 else 0) for i in range(300)]
+    sp = pd.DataFrame(rows)
+    if case == "odd":
+        sp.loc[3, "elements_json"] = None
+        sp.loc[7, "elements_json"] = '{"C": "2", "H": "0"}'
+        sp.loc[8, "charge"] = np.nan
+    lens, names, counts = element_entries(sp)
+    bounds = np.concatenate([[0], np.cumsum(lens)])
+    got = [(names[a:b].tolist(), counts[a:b].tolist()) for a, b in zip(bounds[:-1], bounds[1:])]
+    assert got == _entries_by_definition(sp)
+    assert any(n and n[-1] == "e" for n, _ in got) and any(not n for n, _ in got)
+
+
+def test_nan_term_shortcut_equals_the_terms():
+    """``any_nan_term`` (element and temperature bit sets) answers as the terms themselves:
+    a species' row has a NaN term exactly where one of its elements has no reference value
+    at that T — on random species, reference tables with and without gaps, unknown species."""
+    from pipeline.properties import _Stoichiometry
+
+    rng = np.random.default_rng(3)
+    els = ["C", "H", "N", "O", "S"]
+    mismatches = checked = 0
+    for _ in range(200):
+        sp = _species([(f"S{i}", {e: int(rng.integers(1, 4)) for e in rng.permutation(els)[:rng.integers(0, 5)]},
+                        int(rng.integers(-1, 2)), False) for i in range(30)])
+        refs = pd.DataFrame({"element": (els + ["e"])[:int(rng.integers(2, 7))], "species": "ref", "atoms": 1.0})
+        st = _Stoichiometry.of(sp, sp["species"].to_numpy(object), refs)
+        per_atom = rng.normal(size=(len(st.elements), 7))
+        per_atom[rng.random(per_atom.shape) < rng.choice([0.0, 0.02, 0.2])] = np.nan
+        code, tc = rng.integers(-1, 30, 50), rng.integers(0, 7, 50)
+        val, has = st.terms(code, tc, per_atom)
+        want = bool((has & np.isnan(val)).any())
+        mismatches += want != st.any_nan_term(code, tc, per_atom)
+        checked += want
+    assert mismatches == 0 and 0 < checked < 200
+
+
+@pytest.mark.parametrize("gap", [False, True])
+def test_flat_sums_equal_the_row_sums(gap):
+    """The sums formation uses (terms gathered flat and added with ``add.reduceat``; the
+    compensated sum over rows ordered by their term count) equal :func:`_row_sums` of the
+    padded terms bit for bit (the compensated one on the rows without a NaN term, which
+    the caller sets to NaN), and flag the same rows."""
+    from pipeline.properties import _row_sums, _Stoichiometry
+
+    rng = np.random.default_rng(13)
+    els = ["C", "H", "N", "O", "S", "P", "F", "Cl", "Br", "I"]
+    sp = _species([(f"X{i}(g)", {el: int(rng.integers(1, 40)) for el in rng.permutation(els)[:rng.integers(1, 11)]},
+                    int(rng.integers(-1, 2)), False) for i in range(300)])
+    refs = pd.DataFrame({"element": els + ["e"], "species": "ref", "atoms": 1.0})
+    st = _Stoichiometry.of(sp, sp["species"].to_numpy(object), refs)
+    per_atom = rng.uniform(-3e5, 3e5, (len(st.elements), 6)) + rng.uniform(0, 1, (len(st.elements), 6)) / 3
+    if gap:
+        per_atom[3, 2] = np.nan
+    code, tc = rng.integers(-1, 300, 5000), rng.integers(0, 6, 5000)
+    val, has = st.terms(code, tc, per_atom)
+    for plain in (True, False):
+        want, want_bad = _row_sums(val, has, plain)
+        (got,), (bad,) = (st.plain_sums if plain else st.compensated_sums)(code, tc, (per_atom,))
+        np.testing.assert_array_equal(bad, want_bad)
+        np.testing.assert_array_equal(got[~bad], want[~bad])
+    assert want_bad.any() == gap

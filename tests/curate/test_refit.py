@@ -211,3 +211,26 @@ def test_unknown_form_is_refused():
     with pytest.raises(ValueError, match="unknown form"):
         refit(pd.DataFrame({"record_id": ["a"], "t_low_k": [300.0], "t_high_k": [1000.0]}),
               lambda r, t: (t, t, t), "shomate")
+
+
+def test_refit_runs_blas_on_one_thread_and_restores_it():
+    """Inside ``single_threaded_blas`` every OpenBLAS library of the process runs on one
+    thread; afterwards (also after an exception) each has its thread count back."""
+    from pipeline.refit import _blas_thread_controls, single_threaded_blas
+
+    controls = _blas_thread_controls()
+    if not controls:
+        pytest.skip("no OpenBLAS thread control found in this process")
+    set_, get = controls[0]
+    before = [g() for _, g in controls]
+    set_(2)
+    try:
+        with single_threaded_blas():
+            assert [g() for _, g in controls] == [1] * len(controls)
+        assert get() == 2
+        with pytest.raises(ValueError):
+            with single_threaded_blas():
+                raise ValueError("inside")
+        assert get() == 2
+    finally:
+        set_(before[0])

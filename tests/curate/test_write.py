@@ -68,3 +68,69 @@ def test_sorted_orders_rows_by_key_and_keeps_sorted_frames(seed):
             got = _sorted(frame, keys)
             want = frame.iloc[_reference_order(frame, keys)].reset_index(drop=True)
             pd.testing.assert_frame_equal(got, want)
+
+
+def _parquet_copies(tmp_path, name, df):
+    """The Parquet copy of ``df`` made by :func:`write_parquet` and DuckDB's ``COPY`` of
+    the table :func:`write_table` stored: (pyarrow's, DuckDB's) as pyarrow read them."""
+    import pyarrow.parquet as pq
+
+    from pipeline.curate import arrow_frame, parquet_ready, write_parquet
+
+    frame = arrow_frame(df)
+    ready = parquet_ready(frame)
+    con = duckdb.connect()
+    write_table(con, name, frame)
+    con.execute(f"COPY \"{name}\" TO '{(tmp_path / 'duck.parquet').as_posix()}' (FORMAT parquet)")
+    if ready is None:
+        return None, pq.read_table(tmp_path / "duck.parquet")
+    write_parquet(ready, tmp_path / "arrow.parquet")
+    return pq.read_table(tmp_path / "arrow.parquet"), pq.read_table(tmp_path / "duck.parquet")
+
+
+@pytest.mark.parametrize("rows", [slice(None), slice(0, 2)])
+def test_parquet_copy_equals_duckdb_copy(tmp_path, rows):
+    """The Parquet copy written from the Arrow table is what DuckDB's COPY of the stored
+    table writes: the same column types, the same nullability (a column without a null is
+    required, as DuckDB marks it; every column of an empty table too) and the same values
+    (NaN stored as null). An empty table with an all-null object column (SQL type NULL,
+    which Arrow cannot mark required) is left to DuckDB's COPY."""
+    df = pd.DataFrame({
+        "key": ["a", "b", "c", "d"],
+        "text": pd.Series(["x", None, "z", np.nan], dtype=object),
+        "label": pd.Series(["p", "q", np.nan, "r"]),
+        "t_k": [300.0, 400.0, np.nan, -0.0],
+        "n": [1, 2, 3, 4],
+        "flag": [True, False, True, True],
+        "maybe": pd.Series([True, False, None, True], dtype=object),
+        "num": pd.Series([1, 2.5, None, 3], dtype=object),
+        "dof": pd.array([1, 2, None, 4], dtype="Int64"),
+    }).iloc[rows].reset_index(drop=True)
+    ours, duck = _parquet_copies(tmp_path, "side", df)
+    assert ours is not None
+    assert ours.schema == duck.schema
+    assert ours.equals(duck)
+    assert [f.nullable for f in ours.schema] == [bool(df[c].isna().any()) for c in df.columns]
+    typed = df[["label", "t_k", "n", "flag", "dof"]].iloc[:0]
+    ours, duck = _parquet_copies(tmp_path, "typed_empty", typed)
+    assert ours is not None and ours.num_rows == 0
+    assert ours.schema == duck.schema and not any(f.nullable for f in ours.schema)
+    ours, duck = _parquet_copies(tmp_path, "empty", df.iloc[:0])  # object columns: SQL type NULL
+    assert ours is None and duck.num_rows == 0
+
+
+def test_release_parquet_copies_equal_duckdb_copies(release, tmp_path):
+    """Every Parquet copy of the test release equals DuckDB's COPY of the table in the
+    release's own thermo.duckdb (schema with nullability, and values)."""
+    import pyarrow.parquet as pq
+
+    _, out = release
+    con = duckdb.connect(str(out / "thermo.duckdb"), read_only=True)
+    names = [r[0] for r in con.execute("SELECT table_name FROM duckdb_tables()").fetchall()]
+    assert {"properties", "reactions", "fits", "findings"} <= set(names)
+    for name in names:
+        target = tmp_path / f"{name}.duck.parquet"
+        con.execute(f"COPY \"{name}\" TO '{target.as_posix()}' (FORMAT parquet)")
+        ours, duck = pq.read_table(out / "parquet" / f"{name}.parquet"), pq.read_table(target)
+        assert ours.schema == duck.schema, name
+        assert ours.equals(duck), name
