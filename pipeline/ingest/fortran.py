@@ -3,6 +3,8 @@ from __future__ import annotations
 
 import math
 
+import numpy as np
+
 from ..errors import RecordError
 
 
@@ -89,3 +91,19 @@ def element_pairs(text: str, width_sym: int, width_num: int, n: int, what="formu
         s = sym[0].upper() + sym[1:].lower()
         out[s] = out.get(s, 0.0) + count
     return out
+
+
+def reals_of(fields: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Fixed-width byte fields (a numpy bytes array) → (values, ok): ``float()`` of each field
+    (padding ignored), all at once where every field reads; ``ok`` is False where ``float()``
+    raises or gives a non-finite number (the batch readers of nasa7 and nasa9)."""
+    try:
+        values = fields.astype(float)
+    except ValueError:
+        values = np.full(len(fields), np.nan)
+        for k, f in enumerate(fields.tolist()):
+            try:
+                values[k] = float(f)
+            except ValueError:
+                pass
+    return values, np.isfinite(values)

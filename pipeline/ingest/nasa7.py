@@ -25,7 +25,7 @@ from ..errors import RecordError
 from ..manifest import Source
 from ..thermo import COEF_COLUMNS, from_nasa7
 from .base import RECORD_COLUMNS, REJECTED_COLUMNS, SEGMENT_COLUMNS, ReadResult, frame, rejected_row
-from .fortran import element_pairs, field, number, numbers
+from .fortran import element_pairs, field, number, numbers, reals_of
 
 PHASES = {"G": "g", "L": "l", "S": "cr", "C": "cr"}
 #: the five 15-column coefficient fields of lines 2-4
@@ -97,21 +97,6 @@ def _is_number(text: str) -> bool:
         return False
 
 
-def _floats(fields: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Fixed-width byte fields → (values, ok): ``float()`` of each field (padding ignored);
-    ``ok`` is False where that raises or gives a non-finite number."""
-    try:
-        values = fields.astype(float)
-    except ValueError:
-        values = np.full(len(fields), np.nan)
-        for k, f in enumerate(fields.tolist()):
-            try:
-                values[k] = float(f)
-            except ValueError:
-                pass
-    return values, np.isfinite(values)
-
-
 #: Read plain records with :func:`_parse_blocks` (False: every record by :func:`_parse_record`;
 #: the tests compare the two).
 BATCH = True
@@ -158,9 +143,9 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
     ok &= np.isin(phase, list(PHASES))
     # line 1 reals: no D exponents here (number() and _is_number() read those by other rules)
     has_d = lambda f: np.char.count(f, b"D") + np.char.count(f, b"d") > 0   # noqa: E731
-    t_low, good = _floats(field(0, 46, 55))
+    t_low, good = reals_of(field(0, 46, 55))
     ok &= good & ~has_d(field(0, 46, 55))
-    t_high, good = _floats(field(0, 56, 65))
+    t_high, good = reals_of(field(0, 56, 65))
     ok &= good & ~has_d(field(0, 56, 65))
     # element pairs: symbol (2) + count (3), four in 25-44, a fifth in 74-78 (classic layout)
     pair_fields = [(field(0, 25 + 5 * p, 26 + 5 * p), field(0, 27 + 5 * p, 29 + 5 * p)) for p in range(4)]
@@ -169,14 +154,14 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
         t_mid = np.full(n, 1000.0)
         mm_f = field(0, 66, 78)
         blank = np.char.strip(mm_f) == b""
-        mm, good = _floats(mm_f)
+        mm, good = reals_of(mm_f)
         molar_mass = np.where(blank, np.nan, mm)
         ok &= (good | blank) & ~has_d(mm_f)
     else:
         fifth = field(0, 74, 78)
         with_fifth = (np.char.strip(fifth) != b"") & np.char.isalpha(np.char.strip(field(0, 74, 75)))
         tmid_f = np.where(with_fifth, field(0, 66, 73).astype("S13"), field(0, 66, 78))
-        tm, good = _floats(tmid_f)
+        tm, good = reals_of(tmid_f)
         blank = np.char.strip(tmid_f) == b""
         default = np.array([np.nan if d is None else d for d in defaults])
         t_mid = np.where(good, tm, default)
@@ -194,7 +179,7 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
         present[:, -1] = with_fifth_col
         sym_txt = np.where(present, sym_txt, b"")
         num_txt = np.where(present, num_txt, b"")
-    counts, good = _floats(np.where(num_txt == b"", b"0", num_txt).ravel())
+    counts, good = reals_of(np.where(num_txt == b"", b"0", num_txt).ravel())
     counts, good = counts.reshape(n, k_pairs), good.reshape(n, k_pairs)
     no_sym = sym_txt == b""
     ok &= ~(np.char.count(num_txt, b"D") + np.char.count(num_txt, b"d") > 0).any(axis=1)
@@ -222,7 +207,7 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
     vals = []
     for k, count in ((1, 5), (2, 5), (3, 4)):
         for f in range(count):
-            v, good = _floats(field(k - 1, 1 + 15 * f, 15 + 15 * f, source=coef_bytes))
+            v, good = reals_of(field(k - 1, 1 + 15 * f, 15 + 15 * f, source=coef_bytes))
             ok &= good
             vals.append(v)
     vals = np.stack(vals, axis=1)                      # 14 values: line 2 (5), line 3 (5), line 4 (4)
@@ -230,7 +215,7 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
     if layout == "tm4513":
         dfh_f = field(2, 61, 75, source=coef_bytes)
         blank = np.char.strip(dfh_f) == b""
-        dfh_r, good = _floats(dfh_f)
+        dfh_r, good = reals_of(dfh_f)
         ok &= good | blank
         dfh = np.where(blank, np.nan, dfh_r) * R
     # element counts → {symbol: count} summed in pair order; the electron gives the charge

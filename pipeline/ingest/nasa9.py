@@ -40,7 +40,7 @@ from ..errors import RecordError
 from ..manifest import Source
 from ..thermo import COEF_COLUMNS
 from .base import RECORD_COLUMNS, REJECTED_COLUMNS, SEGMENT_COLUMNS, ReadResult, frame, rejected_row
-from .fortran import element_pairs, field, number, numbers
+from .fortran import element_pairs, field, number, numbers, reals_of
 
 #: The published exponent set of the nine-term form (NASA/TP-2002-211556, eq. 1).
 STANDARD_EXPONENTS = (-2.0, -1.0, 0.0, 1.0, 2.0, 3.0, 4.0, 0.0)
@@ -194,17 +194,7 @@ def _plain_intervals(lines: list[str]) -> tuple[np.ndarray, np.ndarray]:
     c1_rows, c2_rows = coef[:len(cand)], coef[len(cand):]
 
     def reals(src: np.ndarray, start: int, stop: int) -> tuple[np.ndarray, np.ndarray]:
-        f = field(src, start, stop)
-        try:
-            v = f.astype(float)
-        except ValueError:
-            v = np.full(len(f), np.nan)
-            for k, item in enumerate(f.tolist()):
-                try:
-                    v[k] = float(item)
-                except ValueError:
-                    pass
-        return v, np.isfinite(v)
+        return reals_of(field(src, start, stop))
 
     t_lo, ok_lo = reals(t_rows, 1, 11)
     t_hi, ok_hi = reals(t_rows, 12, 22)
