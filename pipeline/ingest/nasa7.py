@@ -169,14 +169,13 @@ def _parse_blocks(blocks: list, defaults: list, layout: str) -> dict:
         # is not a number, nan) follows _parse_record's own rules
         ok &= (good | blank) & ~has_d(tmid_f) & np.isfinite(t_mid)
         pair_fields.append((field(0, 74, 75), field(0, 76, 78)))
-        with_fifth_col = with_fifth
     # symbols and counts of every pair
     k_pairs = len(pair_fields)
     sym_txt = np.stack([np.char.strip(s_) for s_, _ in pair_fields], axis=1)          # (n, k) bytes
     num_txt = np.stack([np.char.strip(c_) for _, c_ in pair_fields], axis=1)
     if layout != "tm4513":
         present = np.ones((n, k_pairs), bool)
-        present[:, -1] = with_fifth_col
+        present[:, -1] = with_fifth
         sym_txt = np.where(present, sym_txt, b"")
         num_txt = np.where(present, num_txt, b"")
     counts, good = reals_of(np.where(num_txt == b"", b"0", num_txt).ravel())

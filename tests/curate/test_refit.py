@@ -218,9 +218,15 @@ def test_refit_runs_blas_on_one_thread_and_restores_it():
     thread; afterwards (also after an exception) each has its thread count back."""
     from pipeline.refit import _blas_thread_controls, single_threaded_blas
 
+    import numpy
+
     controls = _blas_thread_controls()
-    if not controls:
-        pytest.skip("no OpenBLAS thread control found in this process")
+    blas = numpy.__config__.CONFIG["Build Dependencies"]["blas"]["name"]
+    if "openblas" not in blas.lower():
+        # another BLAS (MKL, Accelerate): single_threaded_blas leaves it alone by design;
+        # the set/restore logic itself is tested with stand-in controls below
+        pytest.skip(f"numpy is built with {blas}, not OpenBLAS")
+    assert controls, "numpy uses OpenBLAS but no thread control was found"
     set_, get = controls[0]
     before = [g() for _, g in controls]
     set_(2)
@@ -234,3 +240,20 @@ def test_refit_runs_blas_on_one_thread_and_restores_it():
         assert get() == 2
     finally:
         set_(before[0])
+
+
+def test_single_threaded_blas_restores_every_control(monkeypatch):
+    """The set/restore logic on stand-in controls (any BLAS): one thread inside, each
+    library's own count back afterwards, also after an exception."""
+    import pipeline.refit as rf
+
+    counts = [4, 3]
+    controls = [(lambda n, i=i: counts.__setitem__(i, n), lambda i=i: counts[i]) for i in range(2)]
+    monkeypatch.setattr(rf, "_blas_thread_controls", lambda: controls)
+    with rf.single_threaded_blas():
+        assert counts == [1, 1]
+    assert counts == [4, 3]
+    with pytest.raises(RuntimeError):
+        with rf.single_threaded_blas():
+            raise RuntimeError("inside")
+    assert counts == [4, 3]
