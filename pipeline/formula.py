@@ -353,24 +353,78 @@ class FormulaBatch:
         return self._sum(mass[self.sym] * self.count) - self.charge * 5.48579909e-4
 
 
+def _arrow_strings(texts):
+    """``texts`` as an Arrow string array (null for anything that is not a str) and a
+    function giving text ``i`` as a Python object (for the one-at-a-time parsers)."""
+    import pyarrow as pa
+
+    if isinstance(texts, pa.ChunkedArray):
+        texts = texts.combine_chunks()
+    if isinstance(texts, pa.Array) and (pa.types.is_string(texts.type) or pa.types.is_large_string(texts.type)):
+        return texts, lambda i: texts[i].as_py()
+    items = [t if isinstance(t, str) else None for t in texts]
+    return pa.array(items, pa.string()), items.__getitem__
+
+
+def _utf8_bytes(arr) -> tuple[np.ndarray, np.ndarray]:
+    """``(data, offsets)`` of an Arrow string array: text ``i`` is ``data[offsets[i]:offsets[i + 1]]``
+    (UTF-8 bytes; a null text has no meaning there)."""
+    import pyarrow as pa
+
+    bufs = arr.buffers()
+    kind = np.int64 if pa.types.is_large_string(arr.type) else np.int32
+    offsets = np.frombuffer(bufs[1], kind)[arr.offset:arr.offset + len(arr) + 1].astype(np.int64)
+    data = np.frombuffer(bufs[2], np.uint8) if bufs[2] is not None else np.zeros(0, np.uint8)
+    return data, offsets
+
+
+#: 10**k as exact floats, k = 0..15 (the digits of a count are summed with these)
+_POW10 = np.array([float(10 ** k) for k in range(16)])
+
+
+def _symbol_tokens(arr) -> tuple[np.ndarray, list, np.ndarray, np.ndarray]:
+    """Tokens of formula bodies that match ``(?:[A-Z][a-z]?[0-9]{0,15})+`` (no nulls), read from
+    their bytes with numpy: ``(row, symbols, code, count)``, one entry per token — the text it
+    belongs to, its symbol ``symbols[code]`` and its count (``float`` of its digits, 1 without
+    any; at most 15 digits, so the sums of digit × 10^k are exact integers)."""
+    data, offsets = _utf8_bytes(arr)
+    lo, hi = int(offsets[0]), int(offsets[-1])
+    buf = np.append(data[lo:hi], np.uint8(0))            # a 0 after the end: no letter follows
+    ends = offsets[1:] - lo
+    upper = (buf >= 65) & (buf <= 90)
+    at = np.flatnonzero(upper)                           # every token starts with its capital
+    row = np.searchsorted(ends, at, side="right")
+    nxt = buf[at + 1]
+    second = np.where((nxt >= 97) & (nxt <= 122), nxt, 0).astype(np.int64)
+    uniq, code = np.unique(buf[at].astype(np.int64) * 256 + second, return_inverse=True)
+    symbols = [chr(u // 256) + (chr(u % 256) if u % 256 else "") for u in uniq.tolist()]
+    tok_end = np.minimum(np.append(at[1:], len(buf) - 1), ends[row])
+    dig = np.flatnonzero((buf >= 48) & (buf <= 57))
+    tok = np.cumsum(upper)[dig] - 1
+    value = (buf[dig] - 48).astype(float) * _POW10[tok_end[tok] - 1 - dig]
+    count = np.bincount(tok, value, minlength=len(at))
+    count[np.bincount(tok, minlength=len(at)) == 0] = 1.0
+    return row, symbols, code.ravel(), count
+
+
 def parse_formulas(texts) -> FormulaBatch:
     """:func:`parse_formula` of every text at once; a text that does not parse has
-    ``ok = False`` (ask :func:`parse_formula` for the reason).
+    ``ok = False`` (ask :func:`parse_formula` for the reason). ``texts``: a sequence, or an
+    Arrow string array.
 
     Formulas of the common shape (:data:`_BATCH_FORMULA`) are split into symbols and counts
-    with Arrow string kernels and summed with numpy; integer counts make the sums exact, so
-    the result equals the one-at-a-time parser's. Every other text (parentheses, adducts,
-    decimal counts, unusual charges, unknown symbols, all counts zero) goes through
+    from their bytes with numpy and summed; integer counts make the sums exact, so the result
+    equals the one-at-a-time parser's. Every other text (parentheses, adducts, decimal
+    counts, unusual charges, unknown symbols, all counts zero) goes through
     :func:`parse_formula` itself.
     """
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    texts = [t if isinstance(t, str) else None for t in texts]
-    n = len(texts)
+    arr, text_of = _arrow_strings(texts)
+    n = len(arr)
     ok = np.zeros(n, bool)
     charge = np.zeros(n, np.int64)
-    arr = pa.array(texts, pa.string())
     ext = pc.extract_regex(arr, _BATCH_FORMULA)
     fast = pc.is_valid(ext).to_numpy(zero_copy_only=False) if n else np.zeros(0, bool)
     rows_f = np.flatnonzero(fast)
@@ -378,29 +432,20 @@ def parse_formulas(texts) -> FormulaBatch:
     sym_names: list[str] = []
     if len(rows_f):
         ext_f = ext.take(pa.array(rows_f))
-        sign = pc.struct_field(ext_f, "sign")
+        sign = pc.fill_null(pc.struct_field(ext_f, "sign"), "")
         mag = pc.struct_field(ext_f, "n")
-        sign_len = pc.utf8_length(pc.fill_null(sign, "")).to_numpy(zero_copy_only=False)
-        mag_txt = np.asarray(mag.to_pylist(), dtype=object)
-        has_mag = pc.utf8_length(mag).to_numpy(zero_copy_only=False) > 0
+        sign_len = pc.utf8_length(sign).to_numpy(zero_copy_only=False)
+        mag_len = pc.utf8_length(mag).to_numpy(zero_copy_only=False)
+        has_mag = mag_len > 0
         # a magnitude needs exactly one sign (the general parser says why otherwise)
-        good = ~(has_mag & (sign_len != 1)) & (pc.utf8_length(mag).to_numpy(zero_copy_only=False) <= 9)
-        mag_val = np.where(has_mag, [int(m) if m else 0 for m in mag_txt], sign_len)
-        is_minus = pc.starts_with(pc.fill_null(sign, ""), "-").to_numpy(zero_copy_only=False)
+        good = ~(has_mag & (sign_len != 1)) & (mag_len <= 9)
+        mag_val = pc.cast(pc.if_else(pa.array(has_mag & good), mag, "0"), pa.int64()).to_numpy(zero_copy_only=False)
+        mag_val = np.where(has_mag, mag_val, sign_len)
+        is_minus = pc.starts_with(sign, "-").to_numpy(zero_copy_only=False)
         z = np.where(is_minus, -mag_val, mag_val)
-        # one token per element: a space before every capital, split, then symbol and count
-        body = pc.struct_field(ext_f, "body")
-        tok_lists = pc.split_pattern(pc.utf8_ltrim_whitespace(
-            pc.replace_substring_regex(body, "([A-Z])", " \\1")), " ")
-        tok_row = pc.list_parent_indices(tok_lists).to_numpy(zero_copy_only=False)
-        toks = pc.list_flatten(tok_lists)
-        parts = pc.extract_regex(toks, r"^(?P<s>[A-Z][a-z]?)(?P<c>\d*)$")
-        sym_enc = pc.dictionary_encode(pc.struct_field(parts, "s"))
-        uniq = sym_enc.dictionary.to_pylist()
+        # one token per element symbol, with its count
+        tok_row, uniq, code, cnt = _symbol_tokens(pc.struct_field(ext_f, "body"))
         known = np.array([_is_element(s) for s in uniq], bool)
-        code = sym_enc.indices.to_numpy(zero_copy_only=False)
-        c_txt = pc.struct_field(parts, "c")
-        cnt = pc.cast(pc.if_else(pc.equal(c_txt, ""), "1", c_txt), pa.float64()).to_numpy(zero_copy_only=False)
         # unknown symbols: the general parser raises the exact error
         bad = np.zeros(len(rows_f), bool)
         bad[tok_row[~known[code]]] = True
@@ -428,8 +473,8 @@ def parse_formulas(texts) -> FormulaBatch:
         charge[rows_f[good]] = z[good]
     sym_index = {s: i for i, s in enumerate(sym_names)}
     slow_row, slow_sym, slow_cnt = [], [], []
-    for i in np.flatnonzero(~ok):
-        t = texts[i]
+    for i in np.flatnonzero(~ok).tolist():
+        t = text_of(i)
         if t is None:
             continue
         try:
@@ -459,33 +504,48 @@ def parse_formulas(texts) -> FormulaBatch:
                         count=count[order])
 
 
+def _key_parts(arr):
+    """:func:`parse_key` of an Arrow string array, the plain keys only: ``(ok, formula,
+    state, label)``, ``ok`` a numpy mask and the others Arrow arrays (null where ``ok`` is
+    False; ``label`` also where the key has none).
+
+    Printable-ASCII keys are split with one Arrow regular expression (the pattern of
+    :func:`parse_key`); a key that does not match there, holds other characters (whose
+    whitespace rules could differ) or has a label of blanks (``parse_key`` keeps it as '')
+    is not ``ok`` here: ask :func:`parse_key`."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    ext = pc.extract_regex(arr, _KEY.pattern)
+    state = pc.struct_field(ext, "state")
+    printable = pc.ascii_is_printable(arr)
+    raw_label = pc.struct_field(ext, "label")
+    label = pc.utf8_trim_whitespace(raw_label)
+    has_label = pc.greater(pc.utf8_length(label), 0)
+    blank_label = pc.and_(pc.greater(pc.utf8_length(raw_label), 0), pc.invert(has_label))
+    mask = pc.fill_null(pc.and_(pc.and_(pc.is_in(state, pa.array(STATES)), printable),
+                                pc.invert(blank_label)), False)
+    formula = pc.if_else(mask, pc.utf8_trim_whitespace(pc.struct_field(ext, "formula")), None)
+    label = pc.if_else(pc.and_(mask, has_label), label, None)
+    state = pc.if_else(mask, state, None)
+    return mask.to_numpy(zero_copy_only=False).copy(), formula, state, label
+
+
 def parse_keys(texts) -> tuple[np.ndarray, list, list, list]:
     """:func:`parse_key` of many texts at once: ``(ok, formula, state, label)``, the last
     three lists holding None where ``ok`` is False (ask :func:`parse_key` for the reason).
 
-    Printable-ASCII keys are split with one Arrow regular expression (the pattern of
-    :func:`parse_key`); a key that does not match there, or holds other characters (whose
-    whitespace rules could differ), goes through :func:`parse_key` itself."""
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    texts = [t if isinstance(t, str) else None for t in texts]
-    arr = pa.array(texts, pa.string())
-    ext = pc.extract_regex(arr, _KEY.pattern)
-    state = pc.struct_field(ext, "state")
-    printable = pc.match_substring_regex(arr, r"^[ -~]*$")
-    ok = pc.fill_null(pc.and_(pc.is_in(state, pa.array(STATES)), printable), False)
-    mask = ok
-    ok = ok.to_numpy(zero_copy_only=False).copy()
-    formula = pc.if_else(mask, pc.utf8_trim_whitespace(pc.struct_field(ext, "formula")), None).to_pylist()
-    label = pc.utf8_trim_whitespace(pc.struct_field(ext, "label"))
-    label = pc.if_else(pc.and_(mask, pc.greater(pc.utf8_length(label), 0)), label, None).to_pylist()
-    state = pc.if_else(mask, state, None).to_pylist()
+    Plain keys are split with Arrow string kernels (:func:`_key_parts`); every other key
+    goes through :func:`parse_key` itself."""
+    arr, text_of = _arrow_strings(texts)
+    ok, formula, state, label = _key_parts(arr)
+    formula, state, label = formula.to_pylist(), state.to_pylist(), label.to_pylist()
     for i in np.flatnonzero(~ok).tolist():
-        if texts[i] is None:
+        t = text_of(i)
+        if t is None:
             continue
         try:
-            sk = parse_key(texts[i])
+            sk = parse_key(t)
         except FormulaError:
             continue
         ok[i] = True

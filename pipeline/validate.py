@@ -33,12 +33,16 @@ def _fmt(value) -> str:
 
 
 def _coerce_numbers(schema, df: pd.DataFrame) -> tuple[pd.DataFrame, dict[int, list[str]]]:
-    """Numeric schema columns converted cell by cell; unreadable cells → per-row failures."""
+    """Numeric schema columns converted cell by cell; unreadable cells → per-row failures.
+    A float64 column is numbers already: it is left as it is (``df`` is copied only when a
+    column changes)."""
     out: dict[int, list[str]] = {}
-    df = df.copy()
+    copied = False
     for name, col in schema.columns.items():
-        if name not in df or str(col.dtype) not in ("float64", "int64"):
+        if name not in df or str(col.dtype) not in ("float64", "int64") or df[name].dtype == np.float64:
             continue
+        if not copied:
+            df, copied = df.copy(), True
         raw = df[name]
         num = pd.to_numeric(raw, errors="coerce")
         bad = raw.notna() & num.isna()

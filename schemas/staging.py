@@ -21,6 +21,7 @@ from __future__ import annotations
 import json
 import math
 import re
+from functools import lru_cache
 
 import numpy as np
 import pandera.pandas as pa
@@ -76,58 +77,122 @@ def _stoich_ok(text) -> bool:
 
 #: A JSON number as json.dumps writes it (no NaN or Infinity literals).
 _JSON_NUM = r"-?(?:0|[1-9][0-9]*)(?:\.[0-9]+)?(?:[eE][-+]?[0-9]+)?"
+#: A key of a plainly written JSON map: printable ASCII without quote or backslash.
+_JSON_KEY = r'[ !#-\[\]-~]*'
 
 
-def _json_maps(values, key: str, per_text) -> tuple[np.ndarray, np.ndarray, np.ndarray, list, np.ndarray]:
+def _json_maps(values, per_text) -> tuple[np.ndarray, np.ndarray, object, np.ndarray, np.ndarray, np.ndarray]:
     """The JSON maps ``{"k": number, ...}`` of ``values`` as json.dumps writes them
     (printable ASCII, ``", "`` and ``": "`` separators, no escapes, no repeated key), split
-    with Arrow string kernels: ``(row, keys, numbers, slow, result)`` — one entry per item of
-    the texts read here, ``slow`` the positions of the other texts, for which ``result``
-    already holds ``per_text(text)`` (the one-at-a-time check)."""
+    with Arrow string kernels: ``(row, key_code, keys, numbers, slow, result)`` — ``row``,
+    ``key_code`` (into ``keys``, the distinct keys in ascending order, an Arrow array) and
+    ``numbers`` with one entry per item of the texts read here; ``slow`` the positions of
+    the other texts, for which ``result`` already holds ``per_text(text)`` (the
+    one-at-a-time check).
+
+    A key holds no quote, so ``", "`` ends a number and ``": "`` a key: a text splits into
+    key, number, key, number… Keys and numbers are dictionary-encoded together, and each
+    distinct number is read and each distinct key numbered once."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
     texts = [v if isinstance(v, str) else None for v in values]
     arr = pa.array(texts, pa.string())
-    item = '"' + key + '": ' + _JSON_NUM
-    fast = pc.fill_null(pc.and_(pc.match_substring_regex(arr, r"^[ -\[\]-~]*$"),
-                                pc.match_substring_regex(arr, r"^\{" + item + "(?:, " + item + r")*\}$")), False)
+    item = '"' + _JSON_KEY + '": ' + _JSON_NUM
+    fast = pc.fill_null(pc.match_substring_regex(arr, r"^\{" + item + "(?:, " + item + r")*\}$"), False)
     fast = fast.to_numpy(zero_copy_only=False).copy()
     at = np.flatnonzero(fast)
-    body = pc.utf8_slice_codeunits(arr.take(pa.array(at, pa.int64())), 2, -1)      # without '{"' and '}'
-    items = pc.split_pattern(body, ', "')
-    row = at[pc.list_parent_indices(items).to_numpy(zero_copy_only=False)]
-    parts = pc.split_pattern(pc.list_flatten(items), '": ', max_splits=1)
-    keys = pc.list_element(parts, 0)
-    numbers = pc.cast(pc.list_element(parts, 1), pa.float64()).to_numpy(zero_copy_only=False)
-    # a repeated key: json.loads keeps the last value only; the one-at-a-time check decides
+    sub = arr if len(at) == len(texts) else arr.take(pa.array(at, pa.int64()))
+    body = pc.utf8_slice_codeunits(sub, 2, -1)                       # without '{"' and '}'
+    parts = pc.split_pattern(pc.replace_substring(body, ', "', '": '), '": ')
+    n_items = np.diff(parts.offsets.to_numpy(zero_copy_only=False)) // 2
+    row = np.repeat(at, n_items)
+    enc = pc.dictionary_encode(pc.list_flatten(parts))
+    codes = enc.indices.to_numpy(zero_copy_only=False)
+    k_code, n_code = codes[0::2], codes[1::2]
+    n_dict = len(enc.dictionary)
+    # distinct numbers: cast once each
+    used = np.zeros(n_dict, bool)
+    used[n_code] = True
+    u = np.flatnonzero(used)
+    value = np.zeros(n_dict)
+    value[u] = pc.cast(enc.dictionary.take(pa.array(u, pa.int64())), pa.float64()).to_numpy(zero_copy_only=False)
+    numbers = value[n_code]
+    # distinct keys, numbered in sorted order
+    used[:] = False
+    used[k_code] = True
+    u = np.flatnonzero(used)
+    keys = enc.dictionary.take(pa.array(u, pa.int64()))
+    order = pc.sort_indices(keys).to_numpy(zero_copy_only=False)      # ASCII: Python's order
+    keys = keys.take(pa.array(order, pa.int64()))
+    rank = np.zeros(n_dict, np.int64)
+    rank[u[order]] = np.arange(len(u))
+    key_code = rank[k_code]
+    # a repeated key: json.loads keeps the last value only; the one-at-a-time check decides.
+    # Keys in ascending order within a text (as json.dumps(sort_keys=True) writes them) cannot
+    # repeat; only the other texts are searched.
     repeated = np.zeros(len(texts), bool)
-    if len(row):
-        enc = pc.dictionary_encode(keys)
-        pair = np.sort(row.astype(np.int64) * max(len(enc.dictionary), 1)
-                       + enc.indices.to_numpy(zero_copy_only=False))
-        same = np.flatnonzero(pair[1:] == pair[:-1])
-        repeated[pair[same] // max(len(enc.dictionary), 1)] = True
+    if len(row) > 1:
+        same = row[1:] == row[:-1]
+        suspect = np.zeros(len(texts), bool)
+        suspect[row[1:][same & (key_code[1:] <= key_code[:-1])]] = True
+        if suspect.any():
+            sel = np.flatnonzero(suspect[row])
+            pair = np.sort(row[sel].astype(np.int64) * max(len(keys), 1) + key_code[sel])
+            dup = np.flatnonzero(pair[1:] == pair[:-1])
+            repeated[pair[dup] // max(len(keys), 1)] = True
     keep = ~repeated[row]
     result = np.zeros(len(texts), bool)
     slow = np.flatnonzero(~fast | repeated)
     result[slow] = [per_text(texts[i]) for i in slow.tolist()]
-    return row[keep], keys.filter(pa.array(keep)), numbers[keep], slow, result
+    return row[keep], key_code[keep], keys, numbers[keep], slow, result
+
+
+#: A number json.loads reads as finite and non-zero, as json.dumps writes it without an
+#: exponent (digit counts bounded far inside float range, so nothing overflows or underflows).
+_JSON_NONZERO = r"(?:[1-9][0-9]{0,15}(?:\.[0-9]{1,17})?|0\.[0-9]{0,17}[1-9][0-9]{0,17})"
+#: A species key (:data:`KEY_PATTERN`) written in a JSON map without escapes.
+_JSON_SPECIES_KEY = r"[ !#-\[\]-~]+\((?:g|l|cr|aq)(?:,[ !#-'*-\[\]-~]+)?\)"
+
+
+def _plainly_valid(values, key: str, number: str) -> np.ndarray:
+    """True where a value is a JSON map ``{"k": number, ...}`` written as json.dumps writes
+    it whose every key matches ``key`` and every number ``number`` (one Arrow regular
+    expression over all texts). Such a map passes its check whatever json.loads keeps of a
+    repeated key (every item passes), so only the other texts need reading."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    arr = pa.array([v if isinstance(v, str) else None for v in values], pa.string())
+    item = '"' + key + '": ' + number
+    got = pc.match_substring_regex(arr, r"^\{" + item + "(?:, " + item + r")*\}$")
+    return np.array(pc.fill_null(got, False).to_numpy(zero_copy_only=False), bool)
+
+
+@lru_cache(maxsize=1)
+def _element_symbols() -> str:
+    """The element symbols :func:`_is_element` accepts, as a regular-expression alternation."""
+    return "(?:" + "|".join(sorted((el.symbol for el in periodictable.elements if _is_element(el.symbol)),
+                                   key=lambda x: (-len(x), x))) + ")"
 
 
 def _known_elements_all(s):
-    """:func:`_known_elements` of every value of ``s``, the plainly written ones at once."""
+    """:func:`_known_elements` of every value of ``s``: maps of element symbols to positive
+    plain numbers pass in one pass over the texts (:func:`_plainly_valid`); the others are
+    read item by item, still at once (:func:`_json_maps`)."""
     import pandas as pd
 
-    row, keys, numbers, _, result = _json_maps(s.to_numpy(object), "[^\"]*", _known_elements)
-    if len(row):
-        import pyarrow.compute as pc
-
-        enc = pc.dictionary_encode(keys)
-        known = np.array([_is_element(k) for k in enc.dictionary.to_pylist()], bool)
-        good = known[enc.indices.to_numpy(zero_copy_only=False)] & np.isfinite(numbers) & (numbers > 0)
-        result[row] = True
-        result[row[~good]] = False
+    values = s.to_numpy(object)
+    result = _plainly_valid(values, _element_symbols(), _JSON_NONZERO)
+    rest = np.flatnonzero(~result)
+    if len(rest):
+        row, code, keys, numbers, _, got = _json_maps(values[rest], _known_elements)
+        if len(row):
+            known = np.array([_is_element(k) for k in keys.to_pylist()], bool)
+            good = known[code] & np.isfinite(numbers) & (numbers > 0)
+            got[row] = True
+            got[row[~good]] = False
+        result[rest] = got
     return pd.Series(result, index=s.index)
 
 
@@ -139,16 +204,23 @@ def _is_element(sym: str) -> bool:
 
 
 def _stoich_ok_all(s):
-    """:func:`_stoich_ok` of every value of ``s``, the plainly written ones at once."""
+    """:func:`_stoich_ok` of every value of ``s``: maps of species keys to non-zero plain
+    numbers pass in one pass over the texts (:func:`_plainly_valid`); the others are read
+    item by item, still at once (:func:`_json_maps`)."""
     import pandas as pd
     import pyarrow.compute as pc
 
-    row, keys, numbers, _, result = _json_maps(s.to_numpy(object), "[^\"]*", _stoich_ok)
-    if len(row):
-        good = (pc.match_substring_regex(keys, KEY_PATTERN).to_numpy(zero_copy_only=False)
-                & np.isfinite(numbers) & (numbers != 0))
-        result[row] = True
-        result[row[~good]] = False
+    values = s.to_numpy(object)
+    result = _plainly_valid(values, _JSON_SPECIES_KEY, "-?" + _JSON_NONZERO)
+    rest = np.flatnonzero(~result)
+    if len(rest):
+        row, code, keys, numbers, _, got = _json_maps(values[rest], _stoich_ok)
+        if len(row):
+            key_ok = pc.match_substring_regex(keys, KEY_PATTERN).to_numpy(zero_copy_only=False)
+            good = key_ok[code] & np.isfinite(numbers) & (numbers != 0)
+            got[row] = True
+            got[row[~good]] = False
+        result[rest] = got
     return pd.Series(result, index=s.index)
 
 

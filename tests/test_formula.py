@@ -202,7 +202,7 @@ def _key_one(text):
 _key_text = st.builds(lambda pre, f, st_, lab, post: f"{pre}{f}({st_}{lab}){post}",
                       st.sampled_from(["", " ", "\u00a0"]), _formula_text,
                       st.sampled_from(["g", "l", "cr", "aq", "s", "G", ""]),
-                      st.sampled_from(["", ",graphite", ", a ", ",", ",(x)", ",\u00a0b"]),
+                      st.sampled_from(["", ",graphite", ", a ", ",", ",(x)", ",\u00a0b", ", "]),
                       st.sampled_from(["", " ", "x", "\t"]))
 
 
@@ -212,3 +212,35 @@ def test_parse_keys_equals_parse_key(texts):
     ok, formula, state, label = parse_keys(texts)
     assert [(bool(o), f, s, lb) for o, f, s, lb in zip(ok, formula, state, label)] == \
         [_key_one(t) for t in texts]
+
+
+def test_parse_formulas_of_long_counts_and_arrow_input():
+    """Counts of up to 15 digits are summed exactly from their digits; longer ones, and an
+    Arrow array that is a slice of a larger one (offsets not starting at 0), give what
+    parse_formula gives."""
+    import pyarrow as pa
+
+    texts = ["C123456789012345H2", "C1234567890123456", "H999999999999999O", "C2H6O-2", "Fe+12345",
+             "HHe2H3", "OH-", "N2", "Xx", "C0"]
+    assert _batch_rows(texts) == [_one(t) for t in texts]
+    arr = pa.array(["junk", "ignored("] + texts + ["tail"]).slice(2, len(texts))
+    b = parse_formulas(arr)
+    n_atoms, mass = b.n_atoms(), b.molar_mass_g_mol()
+    got = [(int(b.charge[i]), b.elements(i), float(n_atoms[i]), float(mass[i])) if b.ok[i] else None
+           for i in range(len(texts))]
+    assert got == [_one(t) for t in texts]
+
+
+@settings(max_examples=200, deadline=None)
+@given(st.lists(_key_text, min_size=1, max_size=12))
+def test_parse_keys_of_arrow_strings_equals_parse_key(texts):
+    import pyarrow as pa
+
+    ok, formula, state, label = parse_keys(pa.array(texts, pa.large_string()))
+    assert [(bool(o), f, s, lb) for o, f, s, lb in zip(ok, formula, state, label)] == \
+        [_key_one(t) for t in texts]
+
+
+def test_parse_keys_keeps_a_blank_label_as_parse_key_does():
+    ok, formula, state, label = parse_keys(["X(g, )", "X(g,a)"])
+    assert label == [parse_key("X(g, )").label, "a"] and ok.all()

@@ -43,14 +43,17 @@ def reference_gas_atomicity(species: pd.DataFrame) -> dict[str, float]:
     return out
 
 
-def formation_delta_n(species: pd.DataFrame) -> pd.Series:
+def formation_delta_n(species: pd.DataFrame, only=None) -> pd.Series:
     """Δn of gas in each species' formation reaction from its reference elements.
 
     Element counts come from the species' formulas, parsed at once (the same counts as its
-    ``elements_json``), and are summed in symbol order as a Python loop would."""
+    ``elements_json``), and are summed in symbol order as a Python loop would. ``only``: the
+    species keys wanted (default all); the reference elements come from all of ``species``."""
     from ..formula import ELECTRON, parse_formulas
 
     atom = reference_gas_atomicity(species)
+    if only is not None:
+        species = species[_isin(species["species"], set(only))]
     b = parse_formulas(species["formula"].to_numpy(object))
     gaseous = np.array([s in atom and s != ELECTRON for s in b.symbols], bool)[b.sym]
     atoms = np.array([atom.get(s, 1.0) for s in b.symbols])[b.sym]
@@ -59,31 +62,51 @@ def formation_delta_n(species: pd.DataFrame) -> pd.Series:
     return pd.Series(gas - total, index=species["species"].to_numpy())
 
 
+def _isin(values: pd.Series, pool: set) -> np.ndarray:
+    """Elementwise ``value in pool`` for text keys, as :func:`pipeline.functions.member`
+    finds it, with Arrow's hash kernel on an Arrow-backed column as it is (no Python object
+    per row); anything else goes through :func:`~pipeline.functions.member`."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    if not len(pool) or not len(values):
+        return np.zeros(len(values), bool)
+    try:
+        arr = pa.array(values, from_pandas=True)
+        if not (pa.types.is_string(arr.type) or pa.types.is_large_string(arr.type)):
+            raise TypeError(arr.type)
+        value_set = pa.array(list(pool), arr.type)
+    except (pa.ArrowInvalid, pa.ArrowTypeError, TypeError):
+        return member(values, pool)
+    return pc.is_in(arr, value_set=value_set, skip_nulls=True).to_numpy(zero_copy_only=False)
+
+
 def standard_state(run) -> None:
     """Convert every source whose ``reference_pressure_bar`` differs from the database's."""
     f = run.frames
     p_db = run.p_db_bar
-    f["records"]["source_pressure_bar"] = np.nan
+    rec = f["records"]
+    pressure = {src.id: src.reference_pressure_bar for src in run.manifest.sources}
+    rec["source_pressure_bar"] = (rec["source_id"].map(pressure).astype(float) if len(rec)
+                                  else pd.Series(np.nan, index=rec.index))
     for src in run.manifest.sources:
         ratio = src.reference_pressure_bar / p_db
-        rec_mask = f["records"]["source_id"] == src.id
-        f["records"].loc[rec_mask, "source_pressure_bar"] = src.reference_pressure_bar
         if math.isclose(ratio, 1.0, rel_tol=1e-12):
             continue
         lnr = math.log(ratio)
         state = f["species"].set_index("species")["state"]
-        recs = f["records"][rec_mask]
+        recs = rec[(rec["source_id"] == src.id).to_numpy(bool)]
         gas_ids = set(recs.loc[recs["species"].map(state).eq("g"), "record_id"])
         seg = f["segments"]
-        m = member(seg["record_id"], gas_ids)
+        m = _isin(seg["record_id"], gas_ids)
         seg.loc[m, "b2"] = seg.loc[m, "b2"].astype(float) + lnr
         tp = f["table_points"]
-        if len(tp):
-            tm = member(tp["record_id"], recs["record_id"])
-            gm = tm & member(tp["record_id"], gas_ids)
+        tm = _isin(tp["record_id"], set(recs["record_id"])) if len(tp) else np.zeros(0, bool)
+        if tm.any():            # the source's table rows (none: nothing to convert there)
+            gm = tm & _isin(tp["record_id"], gas_ids)
             for col in ("s_j_mol_k", "gef_j_mol_k"):
                 tp.loc[gm, col] = tp.loc[gm, col].astype(float) + R * lnr
-            dn = formation_delta_n(f["species"])
+            dn = formation_delta_n(f["species"], only=set(recs["species"]))
             sp_of = tp.loc[tm, "record_id"].map(dict(zip(recs["record_id"], recs["species"])))
             dn_rows = sp_of.map(dn).astype(float).to_numpy()
             t = tp.loc[tm, "t_k"].astype(float).to_numpy()

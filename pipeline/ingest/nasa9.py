@@ -38,7 +38,6 @@ import numpy as np
 
 from ..errors import RecordError
 from ..manifest import Source
-from ..thermo import COEF_COLUMNS
 from .base import RECORD_COLUMNS, REJECTED_COLUMNS, SEGMENT_COLUMNS, ReadResult, frame, rejected_row
 from .fortran import element_pairs, field, number, numbers, reals_of
 
@@ -308,16 +307,63 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
         seen[rid] = seen.get(rid, 0) + 1
         if seen[rid] > 1:
             rid += f"#{seen[rid]}"
-        records.append(dict(record_id=rid, source_id=source.id, name=head["name"],
-                            species_hint=None, state=head["state"], label=head["label"],
-                            elements_json=json.dumps(head["elements"], sort_keys=True),
-                            charge=head["charge"], kind="polynomial", form="nasa9", file=rel,
-                            line=start + 1, t_low_k=segs[0][0], t_high_k=segs[-1][1],
-                            stated_dfh_j_mol=head["dfh"], stated_molar_mass_g_mol=head["molar_mass"],
-                            date_code=head["ref_code"]))
+        records.append((rid, head["name"], head["state"], head["label"], _elements_json(head["elements"]),
+                        head["charge"], start + 1, segs[0][0], segs[-1][1], head["dfh"], head["molar_mass"],
+                        head["ref_code"]))
         for k, (lo, hi, coef) in enumerate(segs):
-            segments.append(dict(record_id=rid, segment=k, t_low_k=lo, t_high_k=hi,
-                                 **dict(zip(COEF_COLUMNS, coef)), line=start + 3 + 3 * k))
-    return ReadResult(n_read=n_read, records=frame(records, RECORD_COLUMNS),
-                      segments=frame(segments, SEGMENT_COLUMNS),
+            segments.append((rid, k, lo, hi, *coef, start + 3 + 3 * k))
+    return ReadResult(n_read=n_read, records=_record_frame(records, source.id, rel),
+                      segments=_segment_frame(segments),
                       rejected=frame(rejected, REJECTED_COLUMNS), notes=notes)
+
+
+def _elements_json(elements: dict) -> str:
+    """``json.dumps(elements, sort_keys=True)``, written directly when there is nothing to
+    escape (symbols of ASCII letters and digits, finite float counts)."""
+    items = sorted(elements.items())
+    if all(k.isascii() and k.isalnum() and isinstance(v, float) and math.isfinite(v) for k, v in items):
+        return "{" + ", ".join(f'"{k}": {v!r}' for k, v in items) + "}"
+    return json.dumps(elements, sort_keys=True)
+
+
+def _record_frame(rows: list[tuple], source_id: str, rel: str):
+    """The records frame from row tuples (record_id, name, state, label, elements_json,
+    charge, line, T_low, T_high, ΔfH°, molar mass, reference code), built column by column
+    (as :func:`~pipeline.ingest.base.frame` builds it from dicts: the same columns and dtypes)."""
+    import pandas as pd
+
+    if not rows:
+        return frame([], RECORD_COLUMNS)
+    cols = list(zip(*rows))
+    n = len(rows)
+    data = {"record_id": list(cols[0]), "source_id": [source_id] * n, "name": list(cols[1]),
+            "species_hint": [None] * n, "state": list(cols[2]), "label": list(cols[3]),
+            "elements_json": list(cols[4]), "charge": list(cols[5]), "kind": ["polynomial"] * n,
+            "form": ["nasa9"] * n, "file": [rel] * n, "line": list(cols[6]), "t_low_k": list(cols[7]),
+            "t_high_k": list(cols[8]), "stated_dfh_j_mol": list(cols[9]),
+            "stated_molar_mass_g_mol": list(cols[10]), "date_code": list(cols[11])}
+    return _select(pd.DataFrame(data), RECORD_COLUMNS)
+
+
+def _select(df, columns):
+    """``df`` with exactly ``columns`` in that order (missing ones None, as in ``frame``)."""
+    for c in columns:
+        if c not in df:
+            df[c] = None
+    return df[list(columns)]
+
+
+def _segment_frame(rows: list[tuple]):
+    """The segments frame from row tuples (record_id, segment, T_low, T_high, a1..a7, b1, b2,
+    line), built column by column (as :func:`~pipeline.ingest.base.frame` builds it from
+    dicts: the same columns and dtypes)."""
+    import pandas as pd
+
+    if not rows:
+        return frame([], SEGMENT_COLUMNS)
+    cols = list(zip(*rows))
+    data = {"record_id": list(cols[0]), "segment": np.array(cols[1], np.int64)}
+    for name, values in zip(SEGMENT_COLUMNS[2:-1], cols[2:-1]):
+        data[name] = np.array(values, float)
+    data["line"] = np.array(cols[-1], np.int64)
+    return pd.DataFrame(data)[list(SEGMENT_COLUMNS)]

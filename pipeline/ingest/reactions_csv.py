@@ -26,8 +26,7 @@ import numpy as np
 import pandas as pd
 
 from ..equation import EquationError, parse_equation
-from ..formula import (CACHE_SIZE, ELECTRON, FormulaError, SpeciesKey, parse_formula, parse_formulas, parse_key,
-                       parse_keys)
+from ..formula import ELECTRON, _key_parts, parse_formulas
 from ..errors import InputError, UnitError
 from ..manifest import Source
 from ..units import column_factor, energy_unit_for, factor_to_si, is_dimensionless
@@ -54,109 +53,168 @@ def _parse(equation: str) -> tuple[str | None, str | None]:
     return json.dumps(r.stoich, sort_keys=True), None
 
 
-#: A term of the fast path: an optional integer or decimal coefficient, one space, a key
-#: without spaces or '+' that does not start like a number.
-_FAST_TERM = r"^(?:(?P<c>\d+(?:\.\d+)?) )?(?P<k>[^\s+\d.][^\s+]*)$"
 _BALANCE_TOL = 1e-9     # the tolerance of pipeline.equation.parse_equation
 
 
-def _json_str(text: str) -> str:
-    """``json.dumps(text)``, without the encoder for plain ASCII text (nothing to escape)."""
-    if text.isascii() and text.isprintable() and '"' not in text and "\\" not in text:
-        return f'"{text}"'
-    return json.dumps(text)
+def _arrow_texts(equations):
+    """Equations as an Arrow string array (null for anything not a str), and a function
+    giving equation ``i`` as it was passed (for :func:`_parse`)."""
+    import pyarrow as pa
+
+    if isinstance(equations, pd.Series) and isinstance(equations.dtype, pd.StringDtype) \
+            and equations.dtype.storage == "pyarrow":
+        text = pa.array(equations.array)
+        if isinstance(text, pa.ChunkedArray):
+            text = text.combine_chunks()
+        return text.cast(pa.string()), equations.iat.__getitem__
+    eqs = list(equations)
+    return pa.array([e if isinstance(e, str) else None for e in eqs], pa.string()), eqs.__getitem__
+
+
+def _coefficient_texts(texts):
+    """Mask of the Arrow ``texts`` that are a plain coefficient: ``[0-9]+(?:[.][0-9]+)?`` (digits,
+    at most one '.', with digits on both sides of it)."""
+    import pyarrow.compute as pc
+
+    digits = pc.replace_substring(texts, ".", "", max_replacements=1)
+    good = pc.and_(pc.ascii_is_decimal(digits),
+                   pc.invert(pc.or_(pc.starts_with(texts, "."), pc.ends_with(texts, "."))))
+    return pc.fill_null(good, False).to_numpy(zero_copy_only=False)
+
+
+def _key_texts(texts):
+    """Mask of the Arrow ``texts`` that can be a key of a plain term: not empty, no ' ' or
+    '+', nothing for json to escape ('"', backslash), not starting like a number (a digit
+    or '.')."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    first = pc.utf8_slice_codeunits(texts, 0, 1)
+    good = pc.and_(pc.and_(pc.greater(pc.utf8_length(texts), 0),
+                           pc.invert(pc.is_in(first, pa.array(list("0123456789."))))),
+                   pc.invert(pc.match_substring_regex(texts, r'[ +"\\]')))
+    return pc.fill_null(good, False).to_numpy(zero_copy_only=False)
+
+
+def _equations(equations) -> tuple[np.ndarray, np.ndarray, np.ndarray, tuple | None]:
+    """:func:`parse_equations` as ``(stoich_json, reason, bulk, parsed)``: two object arrays
+    (None where not applicable), the mask of the equations read by the bulk path, and the
+    formulas that path parsed: ``(formulas, batch)``, a list (None where a text was no key)
+    and its :class:`~pipeline.formula.FormulaBatch` (or None when nothing was parsed)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    text, equation_of = _arrow_texts(equations)
+    n = len(text)
+    stoich = np.full(n, None, dtype=object)
+    reason = np.full(n, None, dtype=object)
+    fast = np.zeros(n, bool)
+    parsed_formulas = None
+    # the bulk path: printable ASCII, one '='
+    cand = np.flatnonzero(pc.fill_null(pc.ascii_is_printable(text), False).to_numpy(zero_copy_only=False))
+    sides = pc.split_pattern(text.take(pa.array(cand, pa.int64())), "=")
+    two_sides = pc.list_value_length(sides).to_numpy(zero_copy_only=False) == 2
+    cand, sides = cand[two_sides], sides.filter(pa.array(two_sides))
+    if len(cand):
+        eq_parts, side_parts, term_parts = [], [], []
+        for k in (0, 1):
+            # terms joined by " + " (blanks around a side trimmed; a term with any other blank
+            # does not pass the checks below)
+            lst = pc.split_pattern(pc.ascii_trim_whitespace(pc.list_element(sides, k)), " + ")
+            eq_parts.append(cand[pc.list_parent_indices(lst).to_numpy()])
+            side_parts.append(np.full(len(eq_parts[-1]), k, np.int64))
+            term_parts.append(pc.list_flatten(lst))
+        eq_of = np.concatenate(eq_parts)
+        side = np.concatenate(side_parts)
+        # every distinct term is read once: KEY or COEFFICIENT KEY, split at its first blank
+        enc = pc.dictionary_encode(pa.concat_arrays(term_parts))
+        term = enc.indices.to_numpy(zero_copy_only=False)
+        terms = enc.dictionary
+        pieces = pc.split_pattern(terms, " ", max_splits=1)
+        flat = pc.list_flatten(pieces)
+        has_coef = pc.list_value_length(pieces).to_numpy(zero_copy_only=False) == 2
+        last = np.cumsum(np.where(has_coef, 2, 1)) - 1
+        coef_txt = pc.if_else(pa.array(has_coef), flat.take(pa.array(np.where(has_coef, last - 1, last))), "1")
+        coef_ok = _coefficient_texts(coef_txt)
+        coef_t = pc.cast(pc.if_else(pa.array(coef_ok), coef_txt, "1"), pa.float64()).to_numpy(zero_copy_only=False)
+        kenc = pc.dictionary_encode(flat.take(pa.array(last)))
+        key_t = kenc.indices.to_numpy(zero_copy_only=False)
+        keys = kenc.dictionary
+        # every distinct key parsed at once (pipeline.formula's batch parsers)
+        key_ok = _key_texts(keys)
+        split_ok, formula, state, label = _key_parts(pc.if_else(pa.array(key_ok), keys, None))
+        fb = parse_formulas(formula)
+        parsed = key_ok & split_ok & fb.ok
+        parsed_formulas = (pc.if_else(pa.array(parsed), formula, None).to_pylist(), fb)
+        # the normalised key (SpeciesKey.key) of each, and its rank in sorted order (the
+        # order of json.dumps(sort_keys=True); byte order is code-point order)
+        norm = pc.if_else(pc.is_valid(label), pc.binary_join_element_wise(formula, "(", state, ",", label, ")", ""),
+                          pc.binary_join_element_wise(formula, "(", state, ")", ""))
+        norm = pc.dictionary_encode(pc.if_else(pa.array(parsed), norm, ""))
+        norm_sorted = pc.array_sort_indices(norm.dictionary)
+        rank = np.empty(len(norm.dictionary), np.int64)
+        rank[norm_sorted.to_numpy(zero_copy_only=False)] = np.arange(len(rank))
+        norm_t = rank[norm.indices.to_numpy(zero_copy_only=False)][key_t]
+        # element counts, then the charge, of each distinct term's key
+        real = np.array([sym != ELECTRON for sym in fb.symbols], bool)[fb.sym]
+        width = len(fb.symbols) + 1
+        comp = np.zeros((width, len(keys)))
+        comp[fb.sym[real], fb.row[real]] = fb.count[real]
+        comp[-1] = fb.charge
+        bad_t = ~(coef_ok & (coef_t > 0) & parsed[key_t])
+        bad = np.zeros(n, bool)
+        bad[eq_of[bad_t[term]]] = True
+        # a species twice in one equation: sorted by (equation, key), equal neighbours
+        key_of_row = norm_t[term]
+        pair = eq_of * len(rank) + key_of_row
+        order = np.argsort(pair, kind="stable")
+        pair = pair[order]
+        bad[eq_of[order[1:][pair[1:] == pair[:-1]]]] = True
+        # element and charge totals per equation and side (the quantities parse_equation
+        # sums, term by term in the order written)
+        cell = eq_of * 2 + side
+        tot = np.stack([np.bincount(cell, (coef_t * comp[j][key_t])[term], minlength=2 * n) for j in range(width)], 1)
+        a, b = tot[0::2], tot[1::2]
+        scale = np.maximum(1.0, np.maximum(np.abs(a), np.abs(b)))
+        scale[:, -1] = np.maximum(1.0, np.abs(a[:, -1]))
+        bad |= (np.abs(a - b) > 0.5 * _BALANCE_TOL * scale).any(axis=1)
+        good = order[~bad[eq_of[order]]]              # terms of good equations, by (equation, key)
+        if len(good):
+            # JSON text {"key": ν, ...}: '"key": ν' once per distinct term and side, joined
+            # per equation with Arrow string kernels (keys sorted)
+            vals, val_t = np.unique(coef_t, return_inverse=True)
+            jval = pa.array([json.dumps(s * v) for v in vals.tolist() for s in (-1.0, 1.0)], pa.string())
+            jkey = pc.binary_join_element_wise('"', norm.dictionary.take(norm_sorted), '": ', "").take(pa.array(norm_t))
+            item = pc.binary_join_element_wise(pa.concat_arrays([jkey, jkey]),
+                                               jval.take(pa.array(np.r_[2 * val_t.ravel(), 2 * val_t.ravel() + 1])), "")
+            eq_sorted = eq_of[good]
+            starts = np.flatnonzero(np.r_[True, eq_sorted[1:] != eq_sorted[:-1]])
+            offsets = pa.array(np.r_[starts, len(eq_sorted)].astype(np.int32))
+            items = item.take(pa.array(term[good] + side[good] * len(terms)))
+            bodies = pc.binary_join(pa.ListArray.from_arrays(offsets, items), ", ").to_pylist()
+            done = eq_sorted[starts]
+            stoich[done] = ["{" + t + "}" for t in bodies]
+            fast[done] = True
+    for i in np.flatnonzero(~fast).tolist():
+        stoich[i], reason[i] = _parse(equation_of(i))
+    return stoich, reason, fast, parsed_formulas
 
 
 def parse_equations(equations) -> list[tuple[str | None, str | None]]:
     """(stoich_json, None) or (None, reason) for every equation, vectorised.
 
-    Plainly written equations — terms ``[n ]KEY`` joined by " + ", integer or decimal
-    coefficients, keys without spaces or '+', no species twice, balanced with a margin of
-    half the tolerance of :func:`pipeline.equation.parse_equation` — are parsed all at once
-    (Arrow string kernels, one pass over the distinct species keys, element sums with
-    numpy). Their stoichiometry is exactly what ``parse_equation`` gives (ν = ±float(coefficient
-    text), keys normalised by ``parse_key``, the same JSON). Every other equation
-    (fractions, ions, a repeated species, an imbalance or anything near the tolerance, a
-    syntax error) goes through ``parse_equation`` itself, which gives the exact reason.
+    Plainly written equations — printable ASCII, terms ``[n ]KEY`` joined by " + ", integer
+    or decimal coefficients, keys without spaces, '+', quotes or backslashes, no species
+    twice, balanced with a margin of half the tolerance of
+    :func:`pipeline.equation.parse_equation` — are parsed all at once (Arrow string kernels,
+    one pass over the distinct keys and coefficient texts, element sums with numpy). Their
+    stoichiometry is exactly what ``parse_equation`` gives (ν = ±float(coefficient text),
+    keys normalised as ``parse_key`` does, the same JSON). Every other equation (fractions,
+    ions, a repeated species, an imbalance or anything near the tolerance, a syntax error)
+    goes through ``parse_equation`` itself, which gives the exact reason.
     """
-    import pyarrow as pa
-    import pyarrow.compute as pc
-
-    eqs = list(equations)
-    n = len(eqs)
-    result: list = [None] * n
-    fast = np.zeros(n, bool)
-    text = pa.array([e if isinstance(e, str) else None for e in eqs], pa.string())
-    one_eq = pc.equal(pc.count_substring(text, "="), 1).to_numpy(zero_copy_only=False)
-    cand = np.flatnonzero(np.nan_to_num(one_eq.astype(float)) > 0) if n else np.empty(0, int)
-    if len(cand):
-        sides = pc.split_pattern(text.take(pa.array(cand)), "=")
-        eq_parts, side_parts, term_parts = [], [], []
-        for k in (0, 1):
-            lst = pc.split_pattern(pc.list_element(sides, k), " + ")
-            eq_parts.append(cand[pc.list_parent_indices(lst).to_numpy()])
-            side_parts.append(np.full(len(eq_parts[-1]), k))
-            term_parts.append(pc.utf8_trim_whitespace(pc.list_flatten(lst)))
-        eq_of = np.concatenate(eq_parts)
-        side = np.concatenate(side_parts)
-        terms = pa.concat_arrays(term_parts)
-        ext = pc.extract_regex(terms, _FAST_TERM)
-        ok_term = pc.is_valid(ext).to_numpy(zero_copy_only=False)
-        c_txt = pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "c"), "")
-        c_txt = pc.if_else(pc.equal(c_txt, ""), "1", c_txt)
-        coef = pc.cast(c_txt, pa.float64()).to_numpy(zero_copy_only=False)
-        keys = pc.dictionary_encode(pc.if_else(pc.is_valid(ext), pc.struct_field(ext, "k"), ""))
-        code = keys.indices.to_numpy(zero_copy_only=False)
-        uniq = keys.dictionary.to_pylist()
-        # every distinct key parsed at once (pipeline.formula's batch parsers)
-        key_ok, formula, state, label = parse_keys(uniq)
-        fb = parse_formulas([f if good else None for f, good in zip(formula, key_ok.tolist())])
-        parsed = key_ok & fb.ok
-        norm = np.array([SpeciesKey(f, st, lb).key if good else ""
-                         for f, st, lb, good in zip(formula, state, label, parsed.tolist())], dtype=object)
-        # rank of each distinct normalised key in sorted order (json.dumps(sort_keys=True) order)
-        norm_uniq, norm_code = np.unique(norm.astype(str), return_inverse=True)
-        norm_code = norm_code.ravel()
-        real = np.array([sym != ELECTRON for sym in fb.symbols], bool)[fb.sym]
-        comp = np.zeros((len(uniq), len(fb.symbols) + 1))     # element counts, then the charge
-        comp[fb.row[real], fb.sym[real]] = fb.count[real]
-        comp[:, -1] = fb.charge
-        bad_row = ~ok_term | ~(coef > 0) | ~parsed[code]
-        key_of_row = norm_code[code]
-        pair = pd.DataFrame({"e": eq_of, "k": key_of_row})
-        bad_row |= pair.duplicated().to_numpy()
-        bad = np.zeros(n, bool)
-        bad[eq_of[bad_row]] = True
-        # element and charge totals per equation and side (the quantities parse_equation sums)
-        contrib = coef[:, None] * comp[code]
-        a = np.stack([np.bincount(eq_of[side == 0], contrib[side == 0, j], minlength=n)
-                      for j in range(comp.shape[1])], axis=1)
-        b = np.stack([np.bincount(eq_of[side == 1], contrib[side == 1, j], minlength=n)
-                      for j in range(comp.shape[1])], axis=1)
-        scale = np.maximum(1.0, np.maximum(np.abs(a), np.abs(b)))
-        scale[:, -1] = np.maximum(1.0, np.abs(a[:, -1]))
-        bad |= (np.abs(a - b) > 0.5 * _BALANCE_TOL * scale).any(axis=1)
-        good = np.flatnonzero(~bad[eq_of])
-        if len(good):
-            # JSON text {"key": ν, ...}, keys sorted, built with Arrow string kernels
-            nu = np.where(side[good] == 1, coef[good], -coef[good])
-            vals_u, val_code = np.unique(nu, return_inverse=True)
-            order = np.lexsort((key_of_row[good], eq_of[good]))
-            jkey = pa.array([_json_str(k) for k in norm_uniq.tolist()], pa.string())
-            jval = pa.array([json.dumps(v) for v in vals_u.tolist()], pa.string())
-            items = pc.binary_join_element_wise(jkey.take(pa.array(key_of_row[good][order])),
-                                                jval.take(pa.array(val_code.ravel()[order])), ": ")
-            eq_sorted = eq_of[good][order]
-            starts = np.flatnonzero(np.r_[True, eq_sorted[1:] != eq_sorted[:-1]])
-            offsets = pa.array(np.r_[starts, len(eq_sorted)].astype(np.int32))
-            bodies = pc.binary_join(pa.ListArray.from_arrays(offsets, items), ", ")
-            texts = pc.binary_join_element_wise("{", bodies, "}", "")
-            for e, t in zip(eq_sorted[starts].tolist(), texts.to_pylist()):
-                result[e] = (t, None)
-                fast[e] = True
-    for i in np.flatnonzero(~fast):
-        result[i] = _parse(eqs[i])
-    return result
+    stoich, reason, _, _ = _equations(equations)
+    return list(zip(stoich.tolist(), reason.tolist()))
 
 
 def read(path: Path, source: Source, rel: str) -> ReadResult:
@@ -199,9 +257,9 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
     cf.reject(badq.to_numpy(), "column 'quantity' = " + cf.text("quantity").map(repr)
               + ": expected drh, drg or log_k — fix: correct the quantity")
     # equation
-    parsed = parse_equations(cf.text("equation"))
-    stoich = pd.Series([p[0] for p in parsed], index=cells.index, dtype=object)
-    eq_err = pd.Series([p[1] or "" for p in parsed], index=cells.index)
+    stoich_json, why, bulk, parsed_formulas = _equations(cf.text("equation"))
+    stoich = pd.Series(stoich_json, index=cells.index, dtype=object)
+    eq_err = pd.Series(np.where(np.equal(why, None), "", why), index=cells.index, dtype=object)
     cf.reject((eq_err != "").to_numpy(), eq_err)
     # numbers
     fix = "correct the value"
@@ -268,7 +326,22 @@ def read(path: Path, source: Source, rel: str) -> ReadResult:
         "t_k": t, "value": value * f_val, "uncertainty": unc * f_unc, "unit": unit_si,
         "series": _blank_none(cf.text("series")), "method": _blank_none(cf.text("method")),
     }, index=cells.index)[ok]
-    return ReadResult(n_read=cf.n_rows,
-                      reactions=out.reset_index(drop=True)[list(REACTION_COLUMNS)] if len(out)
-                      else frame([], REACTION_COLUMNS),
-                      rejected=frame(cf.rejected_rows(source.id), REJECTED_COLUMNS))
+    result = ReadResult(n_read=cf.n_rows,
+                        reactions=out.reset_index(drop=True)[list(REACTION_COLUMNS)] if len(out)
+                        else frame([], REACTION_COLUMNS),
+                        rejected=frame(cf.rejected_rows(source.id), REJECTED_COLUMNS))
+    result.formula_columns = _formula_columns(parsed_formulas, stoich_json[ok & ~bulk])
+    return result
+
+
+def _formula_columns(parsed, stoich_json) -> dict:
+    """formula → :func:`pipeline.ingest.resolve._formula_columns` for every species of the
+    file's reactions: those of the bulk path from the formulas it parsed (``parsed``, see
+    :func:`_equations`; it may hold formulas of rejected rows too), the others from the
+    stoichiometry of the equations read one at a time (``stoich_json``). Not a field of
+    :class:`ReadResult`: :func:`pipeline.cache._read` hands it on (it is not cached)."""
+    from .resolve import _columns_of_formulas, formula_columns_of
+
+    known = _columns_of_formulas(parsed[0], parsed[1]) if parsed is not None else {}
+    known.update(formula_columns_of([k for s in stoich_json if isinstance(s, str) for k in json.loads(s)]))
+    return known

@@ -132,15 +132,47 @@ def built_keys(records: pd.DataFrame) -> pd.DataFrame:
     return out
 
 
+def _key_reasons(keys: list, ejs: list) -> list:
+    """:func:`key_reason` of ``(keys[i], elements of ejs[i])`` for every ``i``, the keys and
+    formulas parsed at once (:func:`pipeline.formula.parse_keys`, :func:`parse_formulas`).
+    A key that does not parse, or whose formula contradicts the counts, is asked of
+    :func:`key_reason` itself, for its message; the rest are compared here as it compares."""
+    ok, formula, _, _ = parse_keys(keys)
+    b = parse_formulas([f if good else None for f, good in zip(formula, ok.tolist())])
+    good = ok & b.ok
+    lo = np.searchsorted(b.row, np.arange(len(keys) + 1)).tolist()
+    symbols, sym, count = b.symbols, b.sym.tolist(), b.count.tolist()
+    parsed: dict = {}
+    out = []
+    for i, (key, ej) in enumerate(zip(keys, ejs)):
+        elements = _elements_of(ej, parsed)
+        if not good[i]:
+            out.append(key_reason(key, elements))
+            continue
+        if not elements:
+            out.append(None)
+            continue
+        mine = {symbols[s]: float(c) for s, c in zip(sym[lo[i]:lo[i + 1]], count[lo[i]:lo[i + 1]])
+                if symbols[s] != "e"}
+        theirs = {k: float(v) for k, v in elements.items() if v}
+        if mine != theirs and all(k[0].isupper() for k in theirs):
+            out.append(key_reason(key, elements))
+        else:
+            out.append(None)
+    return out
+
+
 def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
-    """Assign ``species`` to every record. Returns (records, findings, bad_mask).
+    """Assign ``species`` to every record. Returns (records, findings, bad_mask, reasons).
 
     ``bad_mask`` marks records whose key cannot be parsed at all or whose declared key's
     formula contradicts the record's element counts; the caller rejects them.
+
+    A key built where the source was read comes with its :func:`key_reason`; the other keys
+    (declared, or an alias) are checked here, each distinct (key, element counts) once.
     """
     amap = alias_map(species_meta)
-    keys, warn_rows, bad, reasons = [], [], [], []
-    hinted = records["species_hint"].map(lambda h: isinstance(h, str) and h != "").to_numpy(bool)
+    hinted = np.array([isinstance(h, str) and h != "" for h in records["species_hint"].to_numpy(object)], bool)
     if "built_key" not in records:
         records = built_keys(records)
     elif (need := (records["built_key"].isna().to_numpy() & ~hinted)).any():
@@ -151,34 +183,50 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         records.loc[need, "built_ok"] = done["built_ok"].to_numpy(bool)
         records.loc[need, "built_reason"] = done["built_reason"].to_numpy(object)
     cols = {c: records[c].to_numpy(object) for c in
-            ("record_id", "source_id", "name", "species_hint", "state", "label", "elements_json", "charge",
-             "built_key", "built_ok", "built_reason")}
-    parsed_json: dict = {}      # elements_json text → dict (many records share a composition)
-    checked: dict = {}          # (key, elements_json) → reason or None
-    for rid, src, name, hint, state, label, ej, charge, built, built_ok, built_reason in zip(*cols.values()):
-        key = None
-        for cand in (name, hint):
-            if isinstance(cand, str) and cand.lower() in amap:
-                key = amap[cand.lower()]
-                break
-        if key is None and isinstance(hint, str) and hint:
-            key = hint
-        if key is None:
-            key, ok = built, bool(built_ok)
-            if key.lower() in amap:          # the built key may itself be a declared alias
-                key, ok = amap[key.lower()], True
-            if not ok:
-                warn_rows.append((rid, key, src, name))
-        memo = (key, ej if isinstance(ej, str) else None)
-        if memo in checked:
-            reason = checked[memo]
-        elif key is built and isinstance(built_reason, str | type(None)):
-            reason = checked[memo] = built_reason       # checked where the source was read
+            ("record_id", "source_id", "name", "species_hint", "elements_json", "built_key", "built_ok",
+             "built_reason")}
+    names, hints, built = cols["name"], cols["species_hint"], cols["built_key"]
+    # the key: an alias of the name or the declared key, else the declared key, else the built
+    # key (or the alias it is); a built key whose name could not be re-cased is warned about
+    keys = np.where(hinted, hints, built)
+    own = ~hinted & np.array([r is None or isinstance(r, str) for r in cols["built_reason"]], bool)
+    warn = ~hinted & ~cols["built_ok"].astype(bool)
+    if amap:
+        def aliased(texts):
+            return np.array([isinstance(t, str) and t.lower() in amap for t in texts], bool)
+        for i in np.flatnonzero(aliased(names) | aliased(hints) | (~hinted & aliased(built))).tolist():
+            key = None
+            for cand in (names[i], hints[i]):
+                if isinstance(cand, str) and cand.lower() in amap:
+                    key = amap[cand.lower()]
+                    break
+            if key is None and not hinted[i]:
+                key = amap.get(built[i].lower())        # the built key may itself be a declared alias
+            if key is not None:
+                keys[i], own[i], warn[i] = key, False, False
+    keys = keys.tolist()
+    warn_rows = [(cols["record_id"][i], keys[i], cols["source_id"][i], names[i])
+                 for i in np.flatnonzero(warn).tolist()]
+    # a reason per distinct (key, element counts), decided by its first record (as a memo would):
+    # the one that came with a built key, else key_reason's
+    ejs = [e if isinstance(e, str) else None for e in cols["elements_json"]]
+    k_code, _ = pd.factorize(np.asarray(keys, object))
+    e_code, _ = pd.factorize(np.asarray(ejs, object))
+    pair, first, inverse = np.unique(k_code.astype(np.int64) * (len(ejs) + 1) + (e_code + 1),
+                                     return_index=True, return_inverse=True)
+    reason_of = [None] * len(pair)
+    br = cols["built_reason"]
+    todo = []
+    for j, i in enumerate(first.tolist()):
+        if own[i]:
+            reason_of[j] = br[i]
         else:
-            reason = checked[memo] = key_reason(key, _elements_of(ej, parsed_json))
-        keys.append(key)
-        bad.append(reason is not None)
-        reasons.append(reason)
+            todo.append(j)
+    if todo:
+        rows = first[todo].tolist()
+        for j, reason in zip(todo, _key_reasons([keys[i] for i in rows], [ejs[i] for i in rows])):
+            reason_of[j] = reason
+    reasons = [reason_of[j] for j in inverse.tolist()]
     out = records.drop(columns=list(BUILT_COLUMNS))
     out["species"] = keys
     findings = make_findings(
@@ -188,7 +236,7 @@ def resolve_records(records: pd.DataFrame, species_meta: pd.DataFrame):
         message=[f"name {w[3]!r} could not be re-cased to match its element counts; kept as written"
                  for w in warn_rows],
         hint="add an alias for this record in species-csv") if warn_rows else None
-    return out, findings, np.array(bad, dtype=bool), reasons
+    return out, findings, np.array([r is not None for r in reasons], dtype=bool), reasons
 
 
 def _elements_json(elements: dict) -> str:
@@ -216,18 +264,23 @@ def formula_columns_of(keys) -> dict:
 
     All distinct formulas are parsed at once (:func:`pipeline.formula.parse_formulas`) and
     their texts built with Arrow string kernels; the values equal :func:`_formula_columns`'s."""
-    distinct = [k for k in set(keys) if isinstance(k, str)]
-    ok, formula, _, _ = parse_keys(distinct)
+    distinct = pd.unique(pd.Series(keys, dtype=object)) if len(keys) else []
+    ok, formula, _, _ = parse_keys([k for k in distinct if isinstance(k, str)])
     return _columns_of_formulas({f for f, good in zip(formula, ok.tolist()) if good})
 
 
-def _columns_of_formulas(formulas) -> dict:
-    """formula → :func:`_formula_columns` for every formula that parses, all at once."""
+def _columns_of_formulas(formulas, batch=None) -> dict:
+    """formula → :func:`_formula_columns` for every formula that parses, all at once.
+
+    ``batch``: :func:`~pipeline.formula.parse_formulas` of ``formulas`` already computed (a
+    sequence aligned with it, None where a text is to be left out; repeats allowed)."""
     import pyarrow as pa
     import pyarrow.compute as pc
 
-    formulas = sorted(formulas)
-    b = parse_formulas(formulas)
+    if batch is None:
+        formulas = sorted(formulas)
+        batch = parse_formulas(formulas)
+    b = batch
     if not b.ok.any():
         return {}
     real = np.array([s != ELECTRON for s in b.symbols], bool)[b.sym]
@@ -247,7 +300,7 @@ def _columns_of_formulas(formulas) -> dict:
     n_atoms, mass = b.n_atoms().tolist(), b.molar_mass_g_mol().tolist()
     return {f: (z, "{" + e + "}", c + (f"{z:+d}" if z else ""), n, mm)
             for f, good, z, e, c, n, mm in zip(formulas, b.ok.tolist(), b.charge.tolist(), ej, comp, n_atoms, mass)
-            if good}
+            if good and f is not None}
 
 
 def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | None = None) -> pd.DataFrame:
@@ -270,7 +323,7 @@ def species_table(keys: list[str], species_meta: pd.DataFrame, known: dict | Non
     known = dict(known or {})
     known.update(_columns_of_formulas({f for f in formula if f not in known}))
     derived = [known.get(f) or _formula_columns(f) for f in formula]     # the latter raises the reason
-    charge, ej, comp, n_atoms, mm_calc = (list(c) for c in zip(*derived))
+    charge, ej, comp, n_atoms, mm_calc = ([d[k] for d in derived] for k in range(5))
     n = len(all_keys)
     mm = np.full(n, np.nan)
     ref = np.zeros(n, bool)

@@ -117,6 +117,19 @@ def test_delta_n_uses_declared_reference_states(tmp_path):
     assert dn["O2(g)"] == pytest.approx(0.0)
 
 
+def test_delta_n_of_some_species_keeps_the_reference_states_of_all(tmp_path):
+    """``only`` picks the species computed; Br2(l), a declared reference species left out of
+    ``only``, still decides that bromine's reference state is not a gas (exact: the same sums)."""
+    sp = species_table(["Br2(l)", "HBr(g)", "O2(g)", "H2O(g)"], pd.DataFrame(
+        {"species": ["Br2(l)"], "aliases": [""], "stated_molar_mass_g_mol": [np.nan],
+         "reference_element": [True], "geometry": [None], "cas": [None], "source_id": ["s"],
+         "file": ["f"], "line": [1]}))
+    some = formation_delta_n(sp, only={"HBr(g)", "H2O(g)"})
+    assert sorted(some.index) == ["H2O(g)", "HBr(g)"]
+    assert some["HBr(g)"] == 1 - 0.5
+    assert (some == formation_delta_n(sp)[some.index]).all()
+
+
 def test_reactions(tmp_path):
     """ΔrG − Δn RT ln(p_s/p°), log K + Δn ln(p_s/p°)/ln 10 with Δn = Σν over gases; ΔrH unchanged."""
     st = {"N2(g)": -1.0, "N(g)": 2.0}

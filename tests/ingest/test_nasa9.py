@@ -150,3 +150,29 @@ def test_batch_parser_equals_the_interval_parser(tmp_path, seed):
     for _ in range(30):
         path.write_text(mutate_lines(rng.choice(_BASES), rng, (0, 10, 11, 22, 23, 28, 32, 48, 50, 52, 64, 65)))
         assert_batch_equal(nasa9, path, source("nasa9"))
+
+
+def test_frames_built_from_tuples_equal_frames_from_dicts():
+    """The reader builds its records and segments frames column by column; they must equal
+    what ``base.frame`` builds from one dict per row (values, dtypes, column order), also
+    for a label column mixing None and text and a ΔfH° column with NaN."""
+    import json
+    import math
+
+    from pipeline.ingest.base import RECORD_COLUMNS, SEGMENT_COLUMNS, frame
+
+    keys = ["record_id", "name", "state", "label", "elements_json", "charge", "line", "t_low_k", "t_high_k",
+            "stated_dfh_j_mol", "stated_molar_mass_g_mol", "date_code"]
+    rows = [("s/A", "A", "cr", None, '{"C": 1.0}', 0, 1, 200.0, 1000.0, math.nan, 12.011, ""),
+            ("s/B(a)", "B(a)", "cr", "a", '{"B": 1.0}', -1, 5, 300.0, 6000.0, -5.5, 10.81, "g 1/02")]
+    for part in (rows, rows[:1], rows[1:]):
+        dicts = [dict(zip(keys, r), source_id="s", species_hint=None, kind="polynomial", form="nasa9", file="f")
+                 for r in part]
+        pd.testing.assert_frame_equal(nasa9._record_frame(part, "s", "f"), frame(dicts, RECORD_COLUMNS),
+                                      check_exact=True)
+    segs = [("s/A", 0, 200.0, 1000.0, *np.linspace(-1, 1, 9), 3), ("s/A", 1, 1000.0, 6000.0, *range(9), 6)]
+    dicts = [dict(zip(SEGMENT_COLUMNS, s)) for s in segs]
+    pd.testing.assert_frame_equal(nasa9._segment_frame(segs), frame(dicts, SEGMENT_COLUMNS), check_exact=True)
+    assert nasa9._segment_frame([]).columns.tolist() == list(SEGMENT_COLUMNS)
+    for elements in ({"C": 31.0, "H": 50.5, "N": 2.0}, {"Cl": 1e-20}, {"X'": 1.0}, {"C": math.nan}, {}):
+        assert nasa9._elements_json(elements) == json.dumps(elements, sort_keys=True)

@@ -129,3 +129,62 @@ def test_round_trip(tmp_path):
     np.testing.assert_array_equal(r.reactions["value"].to_numpy(float), vals)
     np.testing.assert_array_equal(r.reactions["uncertainty"].to_numpy(float), unc)
     assert (r.reactions["series"] == "s1").all() and (r.reactions["method"] == "m").all()
+
+
+# ------------------------------------------------------------------ the bulk equation parser
+# parse_equations reads plain equations with Arrow kernels and numpy; every equation must
+# come out exactly as pipeline.equation.parse_equation gives it (the same JSON text, the
+# same reason), whichever path it took.
+
+from hypothesis import given, settings, strategies as st  # noqa: E402
+
+_KEYS = ["H2(g)", "O2(g)", "H2O(g)", "H2O(l)", "C(cr,graphite)", "CO2(g)", "CH4(g)", "N2(g)", "NH3(g)",
+         "Na+(aq)", "Cl-(aq)", "NaCl(cr)", "e-(g)", "Fe(OH)2(cr)", "Xx(g)", "H2O(G)", "O(g,", "H2O", "2H(g)",
+         ".H(g)", "H\"(g)", "H2O(aq,x y)", "C(cr,a)", "Cé(g)", "H2O\t(g)", "H(g)"]
+_COEFS = ["", "", "2 ", "0.5 ", "1.5 ", "3 ", "1/2 ", "0 ", "2  ", "2.", "007 ", "1e2 ", ".5 ", "1.0 "]
+_term = st.builds(lambda c, k: c + k, st.sampled_from(_COEFS), st.sampled_from(_KEYS))
+_side = st.lists(_term, min_size=1, max_size=4).map(lambda ts: " + ".join(ts))
+_sep = st.sampled_from([" = ", "=", " = ", " =  ", " == ", " + = "])
+_equation = st.one_of(
+    st.builds(lambda a, s, b: a + s + b, _side, _sep, _side),
+    st.sampled_from(["H2(g) + 0.5 O2(g) = H2O(g)", "2 H2(g) + O2(g) = 2 H2O(g)", "C(cr,graphite) + O2(g) = CO2(g)",
+                     "CH4(g) + 2 O2(g) = CO2(g) + 2 H2O(l)", "N2(g) + 3 H2(g) = 2 NH3(g)", "", "   ",
+                     "H2(g) + H2(g) = H4(g)", "NaCl(cr) = Na+(aq) + Cl-(aq)", "H2O(l) = H2O(g)"]))
+
+
+def _one_by_one(equations):
+    return [reactions_csv._parse.__wrapped__(e) for e in equations]
+
+
+@settings(max_examples=300, deadline=None)
+@given(st.lists(_equation, min_size=1, max_size=20))
+def test_parse_equations_equals_parse_equation(equations):
+    assert reactions_csv.parse_equations(equations) == _one_by_one(equations)
+
+
+def test_parse_equations_of_a_string_column_and_the_bulk_path_is_taken():
+    """A pandas string column (how the reader passes it) gives the same; the plain balanced
+    equations are read by the bulk path, the others one at a time."""
+    import pandas as pd
+
+    eqs = ["2 H2(g) + O2(g) = 2 H2O(g)", "C(cr,graphite) + O2(g) = CO2(g)", "1/2 O2(g) + H2(g) = H2O(g)",
+           "H2(g) = H2O(g)", None, "Na+(aq) + Cl-(aq) = NaCl(cr)"]
+    col = pd.Series(eqs, dtype="str")
+    stoich, reason, bulk, _ = reactions_csv._equations(col)
+    assert list(zip(stoich.tolist(), reason.tolist())) == _one_by_one(col.tolist())
+    assert bulk.tolist() == [True, True, False, False, False, False]
+    assert json.loads(stoich[0]) == {"H2(g)": -2.0, "O2(g)": -1.0, "H2O(g)": 2.0}
+
+
+def test_formula_columns_cover_every_species_of_the_file(tmp_path):
+    """The reader hands on, for every species of its accepted reactions (bulk path or not),
+    exactly the columns pipeline.ingest.resolve._formula_columns gives."""
+    from pipeline.formula import parse_key
+    from pipeline.ingest.resolve import _formula_columns
+
+    result = reactions_csv.read(DATA / "reactions.csv", source("reactions-csv"), "r.csv")
+    species = {k for s in result.reactions["stoich_json"] for k in json.loads(s)}
+    formulas = {parse_key(k).formula for k in species}
+    assert formulas and formulas <= set(result.formula_columns)
+    for f in formulas:
+        assert result.formula_columns[f] == _formula_columns.__wrapped__(f)

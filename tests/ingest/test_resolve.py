@@ -8,7 +8,7 @@ import pytest
 
 from pipeline.ingest import base as ib
 from pipeline.ingest import species_csv
-from pipeline.ingest.resolve import build_key, resolve_records, species_table
+from pipeline.ingest.resolve import build_key, key_reason, resolve_records, species_table
 
 from .conftest import assert_accounted, source
 
@@ -58,6 +58,32 @@ def test_alias_contradicting_the_record_is_rejected():
     assert bad.tolist() == [True]
     assert "contradict species 'CO2(g)'" in reasons[0]
 
+
+
+def test_every_reason_is_key_reason_of_its_record():
+    """Declared keys (hints), aliases and built keys, checked at once and each distinct (key,
+    counts) once, give every record :func:`key_reason` of its own key and counts; the
+    warnings keep the records' order."""
+    meta = _meta([("CO2(g)", "CARBON;dioxide")])
+    recs = ib.frame([
+        _rec("H2O", "g", {"H": 2, "O": 1}, hint="H2O(g)"),          # a declared key that fits
+        _rec("H2O#2", "g", {"H": 1}, hint="H2O(g)"),                # ... that contradicts
+        _rec("H2O#3", "g", {"H": 2, "O": 1}, hint="H2O(g)"),        # the first pair again
+        _rec("bad", "g", {"H": 1}, hint="H2O(q)"),                  # no such state
+        _rec("xx", "g", {"H": 1}, hint="Xx(g)"),                    # no such element
+        _rec("AIR", "g", {"N": 1.56, "O": 0.42}),                   # not re-cased: warned, no formula
+        _rec("CARBON", "g", {"C": 1}),                              # an alias that contradicts
+        _rec("Dioxide", "g", {"C": 1, "O": 2}, hint="CO(g)"),       # the alias beats the hint
+        _rec("ch4", "g", {"C": 1, "H": 4}),                         # built and re-cased
+        _rec("ZZ", "g", {"N": 1, "O": 1}),                          # not re-cased: warned, no formula
+    ], ib.RECORD_COLUMNS)
+    out, warn, bad, reasons = resolve_records(recs, meta)
+    assert list(out["species"]) == ["H2O(g)", "H2O(g)", "H2O(g)", "H2O(q)", "Xx(g)", "AIR(g)", "CO2(g)",
+                                    "CO2(g)", "CH4(g)", "ZZ(g)"]
+    assert reasons == [key_reason(k, json.loads(e)) for k, e in zip(out["species"], recs["elements_json"])]
+    assert bad.tolist() == [r is not None for r in reasons] == [False, True, False, True, True, True, True,
+                                                                 False, False, True]
+    assert list(warn["subject"]) == ["AIR(g)", "ZZ(g)"]
 
 def test_species_table_from_keys():
     sp = species_table(["OH-(aq)", "Ca(OH)2(cr)", "C(cr,diamond)"], _meta([])).set_index("species")

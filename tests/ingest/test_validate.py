@@ -181,3 +181,18 @@ def test_json_checks_at_once_equal_one_at_a_time(texts):
 def test_json_checks_at_once_on_hard_cases(texts, check_all, check_one):
     """Repeated keys (json.loads keeps the last), escapes, overflow and underflow, NaN."""
     assert list(check_all(pd.Series(texts, dtype=object))) == [bool(check_one(t)) for t in texts]
+
+
+@pytest.mark.parametrize("texts,check_all,check_one", [
+    (['{"C": 1.0, "C": 2.0}', '{"D": 1, "T": 2}', '{"C": 0.5}', '{"C": 0.0}', '{"C": 1e-05}', '{"C": 1e+16}',
+      '{"C": ' + "9" * 400 + '.5}', '{"C": 0.' + "0" * 400 + '1}', '{"Og": 1, "H": 2}', '{"H": 1, "X": 1}',
+      '{"H": -1}', '{"H":1}'], _known_elements_all, _known_elements),
+    (['{"A(g)": 1.0, "A(g)": 2.0}', '{"A(g)": -0.5, "B(cr,x y)": 2}', '{"A(q)": 1.0}', '{"(g)": 1.0}',
+      '{"A(g,(x)": 1.0}', '{"A(g)": 1e-05}', '{"A(g)": 0.' + "0" * 400 + '1}', '{"A(g)": -0.0}',
+      '{"A(cr,a)": 3, "B(aq)": 0}', '{"A(l)":1}'], _stoich_ok_all, _stoich_ok),
+])
+def test_json_checks_plain_maps_and_the_rest(texts, check_all, check_one):
+    """Maps whose every item passes are accepted in one pass over the texts; repeated keys,
+    exponents, zeros, long digit strings and unknown keys are read item by item. Both give
+    the one-at-a-time answer."""
+    assert list(check_all(pd.Series(texts, dtype=object))) == [bool(check_one(t)) for t in texts]
