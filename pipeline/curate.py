@@ -367,8 +367,11 @@ def table_values(funcs, h_defined: dict):
     gives ΔfH at 298.15 K, else H − H(298.15) (the fit then has H(298.15) = 0)."""
 
     def values(rids, t):
-        rid = np.broadcast_to(np.asarray(rids, dtype=object)[:, None], np.shape(t))
-        v = funcs.evaluate(rid, t)
+        rids = np.asarray(rids, dtype=object)
+        if hasattr(funcs, "evaluate_codes"):  # each id looked up once, not once per T
+            v = funcs.evaluate_codes(rids, np.broadcast_to(np.arange(len(rids))[:, None], np.shape(t)), t)
+        else:
+            v = funcs.evaluate(np.broadcast_to(rids[:, None], np.shape(t)), t)
         known = np.array([h_defined.get(r, False) for r in np.asarray(rids, dtype=object)])[:, None]
         return v.cp, np.where(known, v.h, v.h_minus_h298), v.s
 
@@ -380,17 +383,24 @@ def write_release(run) -> None:
 
     Each table is sorted (:func:`curated_tables`) and converted to Arrow once
     (:func:`arrow_frame`); DuckDB stores it and pyarrow writes its Parquet copy from the
-    same Arrow table (:func:`write_parquet`). The work runs on two threads (DuckDB and
-    pyarrow release the GIL): DuckDB stores the largest table, ``properties``, first,
-    while the second thread sorts and converts the others and writes every Parquet copy;
-    DuckDB then stores the others. (The order in which tables are created is not visible
-    in the file: DuckDB lists its tables by name.) A table Arrow cannot write as DuckDB
+    same Arrow table (:func:`write_parquet`). The work runs on three threads (DuckDB and
+    pyarrow release the GIL): DuckDB stores the largest table, ``properties``, on a
+    second connection in a transaction of its own (DuckDB compresses a table's columns
+    on the thread that inserts it: one core for a whole table), while the main connection
+    stores the others, in one transaction with the comments and macros, as a further
+    thread sorts and converts them and writes every Parquet copy; that thread then
+    prepares the report texts (:func:`pipeline.report.prepare_reports`; not when
+    ``post_sql`` hooks may change the run). Both connections commit before the hooks run;
+    the build folder is published only when complete (:func:`publish`), so the second
+    transaction is never seen on its own. (The order in which tables are created is not
+    visible in the file: DuckDB lists its tables by name.) A table Arrow cannot write as DuckDB
     would (:func:`parquet_ready`) is copied from the database with ``COPY``, as are all
     tables when a ``post_sql`` hook may have changed them.
     """
     from concurrent.futures import ThreadPoolExecutor
 
     from . import macros
+    from .report import prepare_reports
 
     run.out.mkdir(parents=True, exist_ok=True)
     remove_stale_builds(run.out)
@@ -424,12 +434,22 @@ def write_release(run) -> None:
 
     first = [n for n in tables if n == "properties"]
     pool = ThreadPoolExecutor(max_workers=1)
+    side = ThreadPoolExecutor(max_workers=1)  # DuckDB stores `first` there, on its own connection
     con = duckdb.connect(str(bdir / "thermo.duckdb"))
+    cur = con.cursor()  # a second connection to the same database, used only by `side`
+
+    def store_alone(name: str, frame) -> None:
+        """:func:`write_table` in a transaction of the second connection."""
+        cur.execute("BEGIN TRANSACTION")
+        write_table(cur, name, frame, docs)
+        cur.execute("COMMIT")
+
     try:
-        # the second thread prepares the other tables, in order, while DuckDB stores the first
+        # `pool` prepares the other tables, in order, while DuckDB stores the first (`side`)
         jobs = {name: pool.submit(prepare, name) for name in tables if name not in first}
         writes, copy_later = [], []
-        con.execute("BEGIN TRANSACTION")  # one commit for every table, comment and macro
+        report_job = first_job = None
+        con.execute("BEGIN TRANSACTION")  # one commit for the other tables, comments and macros
         for name in first + list(jobs):
             if name in jobs:
                 frame, by_copy = jobs.pop(name).result()
@@ -441,10 +461,19 @@ def write_release(run) -> None:
                 del ready
             if by_copy:
                 copy_later.append(name)
-            write_table(con, name, frame, docs)
+            if report_job is None and not hooks:
+                # the report texts, after the Parquet copy of the largest table, while
+                # DuckDB stores the others (the findings are final: curated_tables)
+                report_job = pool.submit(prepare_reports, run)
+            if name in first:
+                first_job = side.submit(store_alone, name, frame)
+            else:
+                write_table(con, name, frame, docs)
             del frame
         macros.install(con)
         con.execute("COMMIT")
+        if first_job is not None:
+            first_job.result()
         for hook in hooks:
             hook(con, run)
         pause = float(os.environ.get(PAUSE_ENV, "0") or 0)
@@ -454,9 +483,13 @@ def write_release(run) -> None:
             con.execute(f"COPY \"{name}\" TO '{(pq / (name + '.parquet')).as_posix()}' (FORMAT parquet)")
         for job in writes:
             job.result()
+        if report_job is not None:
+            report_job.result()
         con.execute("CHECKPOINT")
     finally:
+        side.shutdown(wait=True, cancel_futures=True)
         pool.shutdown(wait=True, cancel_futures=True)
+        cur.close()
         con.close()
 
 

@@ -421,26 +421,52 @@ class RecordFunctions:
         """
         rid, t = np.broadcast_arrays(np.asarray(record_ids, dtype=object), np.asarray(t_k, float))
         shape = t.shape
-        rid, t = rid.ravel(), t.ravel()
-        cp, h, s, hmh = (np.full(t.shape, np.nan) for _ in range(4))
         # work on the distinct ids (hash factorisation), then broadcast back by code
-        codes, uniq = pd.factorize(rid)
-        uniq = np.asarray(uniq, dtype=object).astype(str)
+        codes, uniq = pd.factorize(rid.ravel())
+        return self._evaluate_codes(np.asarray(uniq, dtype=object).astype(str), codes, t.ravel(), shape)
+
+    def evaluate_codes(self, record_ids, codes, t_k) -> Values:
+        """:meth:`evaluate` of ``record_ids[codes]`` at ``t_k`` (same shape as ``codes``),
+        without building that array of ids: for many (record, T) pairs over a few records
+        (a grid), the ids are looked up once each. The values are those of :meth:`evaluate`.
+
+        Parameters
+        ----------
+        record_ids : (m,) record ids (str; repeats allowed); codes : int array, each in
+        [0, m); t_k : temperature [K], the shape of ``codes``.
+        """
+        codes = np.asarray(codes, dtype=np.intp)
+        t = np.broadcast_to(np.asarray(t_k, float), codes.shape)
+        shape = t.shape
+        codes, t = codes.ravel(), t.ravel()
+        ids = np.asarray(record_ids, dtype=object)
+        present = np.zeros(len(ids), dtype=bool)
+        present[codes] = True
+        if not present.all():  # only the ids in use
+            used = np.flatnonzero(present)
+            codes = (np.cumsum(present) - 1)[codes]
+            ids = ids[used]
+        return self._evaluate_codes(ids.astype(str), codes, t, shape)
+
+    def _evaluate_codes(self, uniq: np.ndarray, codes: np.ndarray, t: np.ndarray, shape) -> Values:
+        """Values at (``uniq[codes]``, ``t``) (flat), reshaped to ``shape``."""
+        cp, h, s, hmh = (np.full(t.shape, np.nan) for _ in range(4))
         kind_u = self.kind.reindex(uniq).to_numpy()
-        kind = kind_u[codes] if len(uniq) else np.empty(0, dtype=object)
-        is_poly = kind == "polynomial"
+        poly_u = kind_u == "polynomial"
+        is_poly = poly_u[codes] if len(uniq) else np.zeros(len(codes), dtype=bool)
         if is_poly.any():
             si = self.seg_index
-            poly_u = np.flatnonzero(kind_u == "polynomial")
+            poly_u = np.flatnonzero(poly_u)
             rank_u = np.zeros(len(uniq), dtype=int)
             rank_u[poly_u] = si.rank_of(uniq[poly_u])
             h298_u = np.full(len(uniq), np.nan)
             h298_u[poly_u] = evaluate(si.coef[si.segment_for(rank_u[poly_u], np.full(len(poly_u), T_REF))], T_REF).h
-            rank = rank_u[codes[is_poly]]
-            p = evaluate(si.coef[si.segment_for(rank, t[is_poly])], t[is_poly])
-            cp[is_poly], h[is_poly], s[is_poly] = p.cp, p.h, p.s
-            hmh[is_poly] = p.h - h298_u[codes[is_poly]]
-        is_tab = kind == "table"
+            sel = slice(None) if is_poly.all() else is_poly    # every pair (a grid of polynomials): no masks
+            c_p, t_p = codes[sel], t[sel]
+            p = evaluate(si.coef[si.segment_for(rank_u[c_p], t_p)], t_p)
+            cp[sel], h[sel], s[sel] = p.cp, p.h, p.s
+            hmh[sel] = p.h - h298_u[c_p]
+        is_tab = (kind_u == "table")[codes] if len(uniq) else np.zeros(len(codes), dtype=bool)
         if is_tab.any() and len(self.tables.curves.record_ids):
             tb = self.tables
             rank = tb.curves.rank_of(uniq)[codes[is_tab]]

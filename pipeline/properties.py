@@ -499,7 +499,8 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
     n = len(t)
     names = ("cp_j_mol_k", "h_j_mol", "s_j_mol_k", "g_j_mol", "h_minus_h298_j_mol", "dfh_j_mol", "dfg_j_mol",
              "log_kf")
-    col = {c: np.full(n, np.nan) for c in names}
+    # every row of the first five is set block by block below; the formation values may stay NaN
+    col = {c: np.empty(n) if k < 5 else np.full(n, np.nan) for k, c in enumerate(names)}
 
     if refs is None:
         refs = element_references(species, entries)
@@ -524,7 +525,10 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
                          for i in range(0, n, BLOCK_ROWS)) for ref in (ref_h, ref_g)]
     for i in range(0, n, BLOCK_ROWS):
         j = min(n, i + BLOCK_ROWS)
-        v = functions.evaluate(rid_pr[owner[i:j]], t[i:j])
+        if hasattr(functions, "evaluate_codes"):  # the grid's record ids looked up once each
+            v = functions.evaluate_codes(rid_pr, owner[i:j], t[i:j])
+        else:
+            v = functions.evaluate(rid_pr[owner[i:j]], t[i:j])
         for c, a in zip(names, (v.cp, v.h, v.s, v.g, v.h_minus_h298)):
             col[c][i:j] = a
         if with_formation:

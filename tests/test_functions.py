@@ -211,3 +211,27 @@ def test_table_without_any_cp_is_nan_not_a_crash():
     ctx = context(tables=[table_record("N2(g)", "a", [300.0, 400.0], cp_j_mol_k=[np.nan, np.nan])])
     v = ctx.functions.evaluate("a/N2(g)", 350.0)
     assert all(np.isnan(x) for x in (v.cp, v.h, v.s, v.g, v.h_minus_h298))
+
+
+def test_evaluate_codes_equals_evaluate_bit_for_bit():
+    """``evaluate_codes(ids, codes, T)`` is ``evaluate(ids[codes], T)`` exactly (the same
+    arithmetic on the same pairs, so no tolerance): polynomial and table records, a
+    repeated id, an unknown id, ids left unused by the codes, a 2-D grid."""
+    coef = from_nasa7(np.array([3.5, 1e-4, 0.0, 0.0, 0.0, -1000.0, 4.0]))
+    rec, pts = _n2_table()
+    pts.loc[np.isclose(pts["t_k"], T_REF), "dfh_j_mol"] = -1234.0
+    ctx = context(poly=[poly_record("Kr(g)", "a", [(200.0, 3000.0, coef)])], tables=[(rec, pts)])
+    ids = np.array(["cp/N2(g)", "a/Kr(g)", "nope/X(g)", "a/Kr(g)", "unused/Y(g)"], dtype=object)
+    codes = np.array([[0, 1, 2, 3], [3, 1, 0, 0]])
+    t = np.array([[T_REF, 500.0, 700.0, 2500.0], [300.0, 1500.0, 5000.0, 350.0]])
+    got = ctx.functions.evaluate_codes(ids, codes, t)
+    want = ctx.functions.evaluate(ids[codes], t)
+    for name in ("cp", "h", "s", "g", "h_minus_h298"):
+        a, b = getattr(got, name), getattr(want, name)
+        assert a.shape == b.shape == (2, 4)
+        np.testing.assert_array_equal(a, b)  # NaN where both are NaN, else the same bits
+    assert np.isfinite(got.cp[0, 1]) and np.isnan(got.cp[0, 2]) and np.isnan(got.cp[1, 2])
+    # a grid of polynomials only (no masks inside) and an empty request
+    only = ctx.functions.evaluate_codes(ids, np.array([1, 3, 1]), np.array([300.0, 900.0, 2900.0]))
+    np.testing.assert_array_equal(only.h, ctx.functions.evaluate(ids[[1, 3, 1]], [300.0, 900.0, 2900.0]).h)
+    assert ctx.functions.evaluate_codes(ids, np.array([], dtype=int), np.array([])).cp.shape == (0,)

@@ -18,6 +18,7 @@ import hashlib
 import math
 from html import escape
 
+import numpy as np
 import pandas as pd
 
 MAX_PLOTS = 60
@@ -235,7 +236,8 @@ def _generic_table(df: pd.DataFrame, max_rows: int = 100) -> str:
 def plot_order(findings: pd.DataFrame, species_keys: set) -> list[str]:
     """Species with findings, most severe first: unwaived errors, then warnings, then the rest
     (waived or info), more findings first, then by key."""
-    f = findings[findings["subject"].isin(species_keys)]
+    # membership of the few findings' subjects in the set (isin would hash the whole set)
+    f = findings[np.fromiter((s in species_keys for s in findings["subject"]), dtype=bool, count=len(findings))]
     if not len(f):
         return []
     rank = f["severity"].map(SEV_RANK).where(~f["waived"].astype(bool), 3)
@@ -247,8 +249,9 @@ def plot_order(findings: pd.DataFrame, species_keys: set) -> list[str]:
 
 # ------------------------------------------------------------------------------ page
 
-def render_html(run, findings: pd.DataFrame) -> str:
-    """The whole page as one string."""
+def render_html(run, findings: pd.DataFrame, progress="run") -> str:
+    """The whole page as one string (``progress``: as ``run.progress`` — the default —,
+    or None for no messages)."""
     from .. import __version__
     from . import CAUTION
     from .plots import species_svgs
@@ -279,10 +282,11 @@ def render_html(run, findings: pd.DataFrame) -> str:
 
     # ---- plots
     ctx = run.extra.get("ctx")
-    rec_species = set(ctx.records["species"].dropna()) if ctx is not None and len(ctx.records) else set()
+    rec_species = set(ctx.records["species"].dropna().unique().tolist()) \
+        if ctx is not None and len(ctx.records) else set()
     order = plot_order(f, rec_species)
     plotted_list = order[:MAX_PLOTS]
-    svgs = species_svgs(run, plotted_list, f, progress=run.progress)
+    svgs = species_svgs(run, plotted_list, f, progress=run.progress if progress == "run" else progress)
     plotted = set(svgs)
 
     code = exit_code(f, run.fail_on)
