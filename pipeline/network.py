@@ -497,6 +497,84 @@ def reconcile(A, value_j_mol, u_j_mol, prior_j_mol, prior_sd_j_mol, *, z_max: fl
     return fit
 
 
+def _fit_in_worker(args: tuple, kwargs: dict) -> NetworkFit:
+    """:func:`reconcile` in the worker of :class:`BackgroundFit`, looked up there by name
+    (the task is pickled on a pool thread, after the caller may have rebound names)."""
+    return reconcile(*args, **kwargs)
+
+
+def _fit_key(args: tuple, kwargs: dict) -> bytes:
+    """A digest of every input of :func:`reconcile` (matrix structure and values, data,
+    priors, options): equal digests mean the same fit."""
+    import hashlib
+
+    h = hashlib.blake2b(digest_size=32)
+
+    def put(x) -> None:
+        if sp.issparse(x):
+            x = x.tocsr()
+            h.update(repr(("csr", x.shape)).encode())
+            for part in (x.indptr, x.indices, x.data):
+                put(part)
+        elif isinstance(x, np.ndarray):
+            a = np.ascontiguousarray(x)
+            h.update(repr(("nd", a.dtype.str, a.shape)).encode())
+            h.update(a.tobytes())
+        else:
+            h.update(repr(("py", x)).encode())
+
+    for a in args:
+        put(a)
+    for k in sorted(kwargs):
+        h.update(k.encode())
+        put(kwargs[k])
+    return h.digest()
+
+
+class BackgroundFit:
+    """:func:`reconcile` started early in one spawned worker process.
+
+    The check stage starts the network fit with the inputs it can already build, so that
+    the fit runs on the second CPU while the other checks run here; the network check
+    later asks for the fit of its actual inputs (:meth:`result_for`) and gets the worker's
+    result only when every input is identical (:func:`_fit_key`), else ``None`` (the
+    caller then fits in its own process). The worker runs the same function on the same
+    inputs with the same seed, so the result is the one a fit here would give. Any
+    failure of the worker (no process could be started, an exception in the fit) also
+    gives ``None``: the caller's own fit then raises its own error, if any.
+    """
+
+    def __init__(self, args: tuple, kwargs: dict):
+        import multiprocessing as mp
+
+        self.key = _fit_key(args, kwargs)
+        self._pool = None
+        self._job = None
+        try:
+            self._pool = mp.get_context("spawn").Pool(1)
+            self._job = self._pool.apply_async(_fit_in_worker, (args, kwargs))
+        except (OSError, RuntimeError, ValueError):
+            self.close()
+
+    def result_for(self, args: tuple, kwargs: dict) -> NetworkFit | None:
+        """The worker's fit if ``args``/``kwargs`` equal the started ones, else None."""
+        try:
+            if self._job is None or _fit_key(args, kwargs) != self.key:
+                return None
+            return self._job.get()
+        except Exception:                       # noqa: BLE001 - the caller fits itself
+            return None
+        finally:
+            self.close()
+
+    def close(self) -> None:
+        """Stop the worker (also while it is still fitting) and release it."""
+        pool, self._pool, self._job = self._pool, None, None
+        if pool is not None:
+            pool.terminate()
+            pool.join()
+
+
 def _design(A, u, ps, im, ip) -> sp.csr_matrix:
     """Whitened design rows: measurements ``im`` (a/u), then priors of species ``ip`` (e_i/σ)."""
     Jm = sp.diags(1.0 / u[im]) @ A[im]

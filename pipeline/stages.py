@@ -220,6 +220,7 @@ def stage_check(run: Run) -> None:
     """Run every registered check on the validated frames."""
     from .checks import registry
     from .checks.context import CheckContext
+    from .checks.reactions import NETWORK_CHECK, start_network_fit
 
     f = run.frames
     ctx = CheckContext(species=f["species"], records=f["records"], segments=f["segments"],
@@ -229,6 +230,9 @@ def stage_check(run: Run) -> None:
                                              for s in run.manifest.sources],
                                             columns=["source_id", "priority", "kind"]))
     run.extra["ctx"] = ctx
+    if run.extra.get("background_network") and NETWORK_CHECK not in run.config.disabled:
+        # a large network is fitted on the second CPU while the checks below run here
+        start_network_fit(ctx, pd.concat(run.findings_parts, ignore_index=True) if run.findings_parts else None)
     specs = [s for s in registry.runnable("check") if s.id not in run.config.disabled]
     for i, spec in enumerate(specs):
         run.progress(f"check {spec.id}", i, len(specs))
@@ -327,11 +331,19 @@ def execute(run: Run) -> Run:
     if cache.reuse_release(run, t0):
         publish(run)
         return run
-    for name, fn in STAGES:
-        run.progress(name, stage=name)
-        t0 = time.perf_counter()
-        fn(run)
-        run.seconds[name] = time.perf_counter() - t0
+    # all stages run: the check stage may start the network fit early (stage_check)
+    run.extra["background_network"] = True
+    try:
+        for name, fn in STAGES:
+            run.progress(name, stage=name)
+            t0 = time.perf_counter()
+            fn(run)
+            run.seconds[name] = time.perf_counter() - t0
+    finally:
+        if "ctx" in run.extra:
+            from .checks.reactions import close_background
+
+            close_background(run.extra["ctx"])
     cache.finish(run)  # every stage's seconds, the run key and what was reused, in the runs row
     publish(run)
     return run

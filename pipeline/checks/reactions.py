@@ -46,17 +46,20 @@ def preferred_records(ctx: CheckContext) -> dict:
     (``ctx.prior_findings``); callers must not modify the mapping."""
     if not len(ctx.records):
         return {}
-
-    def build():
-        f = ctx.prior_findings
-        if f is not None and len(f):
-            f = (f.assign(waived=f["waived"].fillna(False).astype(bool)) if "waived" in f
-                 else f.assign(waived=False))
-        pref = choose_preferred(ctx.records, _sources(ctx), f)
-        return dict(zip(pref["species"].to_numpy(object), pref["preferred_record_id"].to_numpy(object)))
-
     return _cached(ctx, "reactions.preferred", (ctx.records, getattr(ctx, "sources", None), ctx.prior_findings),
-                   build)
+                   lambda: _preferred_given(ctx, ctx.prior_findings))
+
+
+def _preferred_given(ctx: CheckContext, findings: pd.DataFrame | None) -> dict:
+    """species → preferred record id with ``findings`` as the earlier findings."""
+    if not len(ctx.records):
+        return {}
+    f = findings
+    if f is not None and len(f):
+        f = (f.assign(waived=f["waived"].fillna(False).astype(bool)) if "waived" in f
+             else f.assign(waived=False))
+    pref = choose_preferred(ctx.records, _sources(ctx), f)
+    return dict(zip(pref["species"].to_numpy(object), pref["preferred_record_id"].to_numpy(object)))
 
 
 def _cached(ctx: CheckContext, name: str, inputs: tuple, build):
@@ -562,6 +565,93 @@ def _priors(ctx: CheckContext, species: np.ndarray, pref: dict):
     return val, unc
 
 
+NETWORK_CHECK = "network.worst-offender"
+#: Networks of at least this many ΔrH measurements at 298.15 K are fitted in a worker
+#: process started during the check stage (:func:`start_network_fit`); smaller ones take
+#: less time than starting a process.
+BACKGROUND_MIN_MEASUREMENTS = 20_000
+
+
+@dataclass(frozen=True)
+class _Network:
+    """The ΔrH°(298.15) measurements of the network and its design: ``A`` (measurements ×
+    ``unknown`` species, coefficients ν; reference elements left out, ΔfH = 0), the
+    reference elements it contains (``ref_in``) and each measurement's rank in reaction-id
+    order (``tie_rank``, the tie-break)."""
+
+    meas: pd.DataFrame
+    A: sp.csr_matrix
+    unknown: np.ndarray
+    ref_in: list
+    tie_rank: np.ndarray
+
+
+def _network(ctx: CheckContext) -> _Network | None:
+    """:class:`_Network` of ``ctx`` (cached), or None when no measurement qualifies."""
+    return _cached(ctx, "reactions.network", (ctx.reactions, ctx.species, ctx.config), lambda: _build_network(ctx))
+
+
+def _build_network(ctx: CheckContext) -> _Network | None:
+    rx = ctx.reactions.reset_index(drop=True)
+    if not len(rx):
+        return None
+    win = ctx.tol(NETWORK_CHECK, "t_window_k")
+    sel = ((rx["quantity"] == "drh") & (np.abs(rx["t_k"].astype(float) - T_REF) <= win)
+           & np.isfinite(rx["value"].astype(float)) & (rx["uncertainty"].astype(float) > 0)
+           & rx["stoich_json"].notna()).to_numpy()
+    meas = rx[sel].reset_index(drop=True)
+    if not len(meas):
+        return None
+    st = stoichiometry(ctx)
+    row, code, nu = st.select(np.flatnonzero(sel))
+    refs = reference_species(ctx)
+    is_ref = np.fromiter((s in refs for s in st.species), dtype=bool, count=len(st.species))[code]
+    present = np.flatnonzero(np.bincount(code[~is_ref], minlength=len(st.species)))
+    unknown = np.array(sorted(st.species[present].tolist()), dtype=object)
+    col = np.full(len(st.species), -1, dtype=np.int64)
+    col[present] = pd.Index(unknown).get_indexer(st.species[present])
+    A = sp.csr_matrix((nu[~is_ref], (row[~is_ref], col[code[~is_ref]])), shape=(len(meas), len(unknown)))
+    ref_in = sorted(st.species[np.flatnonzero(np.bincount(code[is_ref], minlength=len(st.species)))].tolist())
+    # data the network cannot tell apart (equal |t|): the lowest reaction id is set aside first
+    rid_rank = np.empty(len(meas), dtype=np.int64)
+    rid_rank[np.argsort(meas["reaction_id"].astype(str).to_numpy(object), kind="stable")] = np.arange(len(meas))
+    return _Network(meas=meas, A=A, unknown=unknown, ref_in=ref_in, tie_rank=rid_rank)
+
+
+def _fit_inputs(ctx: CheckContext, net: _Network, pref: dict) -> tuple[tuple, dict]:
+    """Arguments of :func:`pipeline.network.reconcile` for ``net`` with the priors of the
+    preferred records ``pref``."""
+    prior, prior_sd = _priors(ctx, net.unknown, pref)
+    args = (net.A, net.meas["value"].to_numpy(float), net.meas["uncertainty"].to_numpy(float), prior, prior_sd)
+    return args, dict(z_max=ctx.tol(NETWORK_CHECK, "z_max"), alpha=ctx.tol(NETWORK_CHECK, "chi2_alpha"),
+                      tie_rank=net.tie_rank)
+
+
+def start_network_fit(ctx: CheckContext, findings: pd.DataFrame | None,
+                      min_measurements: int = BACKGROUND_MIN_MEASUREMENTS) -> bool:
+    """Start the network fit of ``network.worst-offender`` in a worker process now.
+
+    The fit's priors depend on the preferred records, which depend on the findings of the
+    checks (records with errors are demoted); they are taken with the ``findings`` known
+    now. The check later uses the worker's result only if its own inputs, built with all
+    findings, are identical (:class:`pipeline.network.BackgroundFit`); so the result never
+    depends on this start, only the time does. Returns whether a fit was started."""
+    net = _network(ctx)
+    if net is None or len(net.meas) < min_measurements:
+        return False
+    args, kwargs = _fit_inputs(ctx, net, _preferred_given(ctx, findings))
+    close_background(ctx)
+    ctx.cached("reactions.network_background", dict)["fit"] = nw.BackgroundFit(args, kwargs)
+    return True
+
+
+def close_background(ctx: CheckContext) -> None:
+    """Stop a network fit started by :func:`start_network_fit` that nothing used."""
+    bg = ctx.cached("reactions.network_background", dict).pop("fit", None)
+    if bg is not None:
+        bg.close()
+
+
 @check("network.worst-offender", tolerances={"z_max": 3.0, "chi2_alpha": 0.01, "t_window_k": 0.5},
        stage="network")
 def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
@@ -588,40 +678,26 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
     Chem. A 108 (2004) 9979; Narasimhan & Jordache, *Data Reconciliation and Gross Error
     Detection* (2000) (standardised residuals, serial elimination).
     """
-    cid = "network.worst-offender"
-    rx = ctx.reactions.reset_index(drop=True)
+    cid = NETWORK_CHECK
     empty_table = pd.DataFrame({c: pd.Series(dtype=object if c == "species" else (bool if c == "determined" else float))
                                 for c in RECONCILED_COLUMNS})
-    if not len(rx):
+    net = _network(ctx)
+    if net is None:
+        close_background(ctx)
         ctx.tables_out["reconciled"] = empty_table
         return empty_findings()
-    win = ctx.tol(cid, "t_window_k")
-    sel = ((rx["quantity"] == "drh") & (np.abs(rx["t_k"].astype(float) - T_REF) <= win)
-           & np.isfinite(rx["value"].astype(float)) & (rx["uncertainty"].astype(float) > 0)
-           & rx["stoich_json"].notna()).to_numpy()
-    meas = rx[sel].reset_index(drop=True)
-    if not len(meas):
-        ctx.tables_out["reconciled"] = empty_table
-        return empty_findings()
-    st = stoichiometry(ctx)
-    row, code, nu = st.select(np.flatnonzero(sel))
-    refs = reference_species(ctx)
-    is_ref = np.fromiter((s in refs for s in st.species), dtype=bool, count=len(st.species))[code]
-    present = np.flatnonzero(np.bincount(code[~is_ref], minlength=len(st.species)))
-    unknown = np.array(sorted(st.species[present].tolist()), dtype=object)
-    col = np.full(len(st.species), -1, dtype=np.int64)
-    col[present] = pd.Index(unknown).get_indexer(st.species[present])
-    A = sp.csr_matrix((nu[~is_ref], (row[~is_ref], col[code[~is_ref]])), shape=(len(meas), len(unknown)))
+    meas, unknown, ref_in = net.meas, net.unknown, net.ref_in
     pref = preferred_records(ctx)
-    prior, prior_sd = _priors(ctx, unknown, pref)
+    args, kwargs = _fit_inputs(ctx, net, pref)
+    prior, prior_sd = args[3], args[4]
     h_rec = _evaluate(ctx, np.array([pref.get(s) for s in unknown], dtype=object), np.full(len(unknown), T_REF),
                       which=0)
     record_value = np.where(np.isfinite(h_rec), h_rec, prior)
-    # data the network cannot tell apart (equal |t|): the lowest reaction id is set aside first
-    rid_rank = np.empty(len(meas), dtype=np.int64)
-    rid_rank[np.argsort(meas["reaction_id"].astype(str).to_numpy(object), kind="stable")] = np.arange(len(meas))
-    fit = nw.reconcile(A, meas["value"].to_numpy(float), meas["uncertainty"].to_numpy(float), prior, prior_sd,
-                       z_max=ctx.tol(cid, "z_max"), alpha=ctx.tol(cid, "chi2_alpha"), tie_rank=rid_rank)
+    # the fit started early on the second CPU, when its inputs are these (else fitted here)
+    bg = ctx.cached("reactions.network_background", dict).pop("fit", None)
+    fit = bg.result_for(args, kwargs) if bg is not None else None
+    if fit is None:
+        fit = nw.reconcile(*args, **kwargs)
 
     comp = fit.species_component
     chi2 = np.array([fit.chi2[c] for c in comp], float)
@@ -634,7 +710,6 @@ def network_worst_offender(ctx: CheckContext) -> pd.DataFrame:
         "prior_dfh_298_j_mol": prior, "prior_uncertainty_dfh_298_j_mol": prior_sd,
         "determined": det.astype(bool), "chi2": chi2, "dof": dof,
         "reduced_chi2": np.where(dof > 0, chi2 / np.where(dof > 0, dof, 1), np.nan)})
-    ref_in = sorted(st.species[np.flatnonzero(np.bincount(code[is_ref], minlength=len(st.species)))].tolist())
     if ref_in:
         tbl = pd.concat([tbl, pd.DataFrame({
             "species": ref_in, "dfh_298_j_mol": 0.0, "uncertainty_dfh_298_j_mol": 0.0,
