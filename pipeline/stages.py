@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import hashlib
 import time
-import traceback
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Callable
@@ -221,6 +220,7 @@ def stage_check(run: Run) -> None:
     from .checks import registry
     from .checks.context import CheckContext
     from .checks.reactions import NETWORK_CHECK, start_network_fit
+    from .checks.runner import run_checks
 
     f = run.frames
     ctx = CheckContext(species=f["species"], records=f["records"], segments=f["segments"],
@@ -234,21 +234,10 @@ def stage_check(run: Run) -> None:
         # a large network is fitted on the second CPU while the checks below run here
         start_network_fit(ctx, pd.concat(run.findings_parts, ignore_index=True) if run.findings_parts else None)
     specs = [s for s in registry.runnable("check") if s.id not in run.config.disabled]
-    for i, spec in enumerate(specs):
-        run.progress(f"check {spec.id}", i, len(specs))
+    # on a large database part of the checks run in a forked process (checks.runner)
+    for spec, found in zip(specs, run_checks(ctx, specs, run.progress)):
         run.extra.setdefault("checks_ran", []).append(spec.id)
-        run.add_findings(_safe(spec, ctx))
-
-
-def _safe(spec, ctx) -> pd.DataFrame:
-    """Run one check; a crash becomes an error finding instead of ending the run."""
-    try:
-        return spec.func(ctx)
-    except Exception as exc:  # a broken check must not hide the others' findings
-        tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
-        return make_findings(check_id=spec.id, severity="error", subject="(check failed)",
-                             subject_kind="database", message=f"check {spec.id} failed: {tb}",
-                             hint="a thermoledger bug: please report it with the input that caused it")
+        run.add_findings(found)
 
 
 # --------------------------------------------------------------------------- reconcile
@@ -256,6 +245,7 @@ def _safe(spec, ctx) -> pd.DataFrame:
 def stage_reconcile(run: Run) -> None:
     """Reaction residuals, cycles and the network fit (checks registered for stage 'network')."""
     from .checks import registry
+    from .checks.runner import safe_run
 
     ctx = run.extra["ctx"]
     ctx.prior_findings = (pd.concat(run.findings_parts, ignore_index=True)
@@ -264,7 +254,7 @@ def stage_reconcile(run: Run) -> None:
     for i, spec in enumerate(specs):
         run.progress(f"check {spec.id}", i, len(specs))
         run.extra.setdefault("checks_ran", []).append(spec.id)
-        run.add_findings(_safe(spec, ctx))
+        run.add_findings(safe_run(spec, ctx))
 
 
 # -------------------------------------------------------------------------------- emit
