@@ -37,6 +37,14 @@ def choose_preferred(records: pd.DataFrame, sources: pd.DataFrame,
         flag = r[["species", "source_id"]].merge(bad, left_on=["species", "source_id"],
                                                  right_on=["species", "_src"], how="left")["_bad"]
         r["has_error"] = flag.fillna(False).astype(bool).to_numpy()
+    # a species with one record has nothing to choose between: only the others are ranked
+    alone = ~r["species"].duplicated(keep=False).to_numpy()
+    single = pd.DataFrame({"species": r["species"].to_numpy()[alone],
+                           "preferred_record_id": r["record_id"].to_numpy()[alone],
+                           "preferred_reason": "only record"})
+    r = r[~alone]
+    if not len(r):
+        return single.sort_values("species", kind="stable").reset_index(drop=True)
     r["kind_rank"] = r["provenance"].map(KIND_ORDER).fillna(9)
     r["form_rank"] = (r["kind"] != "polynomial").astype(int)
     r["span"] = r["t_high_k"].astype(float) - r["t_low_k"].astype(float)
@@ -63,9 +71,11 @@ def choose_preferred(records: pd.DataFrame, sources: pd.DataFrame,
     tail = pd.Series(", all with unwaived errors", index=f.index).where(f["has_error"].astype(bool), "")
     reasons = [("only record" if c == 1 else f"best of {c}: {w}{t}")
                for c, w, t in zip(count, why.to_numpy(), tail.to_numpy())]
-    return pd.DataFrame({"species": first["species"].to_numpy(),
-                         "preferred_record_id": first["record_id"].to_numpy(),
-                         "preferred_reason": reasons})
+    chosen = pd.DataFrame({"species": first["species"].to_numpy(),
+                           "preferred_record_id": first["record_id"].to_numpy(),
+                           "preferred_reason": reasons})
+    return (pd.concat([single, chosen], ignore_index=True).sort_values("species", kind="stable")
+            .reset_index(drop=True))
 
 
 def _int_text(v: pd.Series) -> pd.Series:

@@ -52,15 +52,19 @@ def _table_nodes(ctx: CheckContext) -> pd.DataFrame:
     return nodes.reset_index(drop=True)
 
 
-def _reference_rows(nodes: pd.DataFrame, column: str) -> pd.Series:
-    """Per node, the index of its record's reference row for ``column``: the 298.15 K row
-    if it is tabulated with a value, else the first row that has a value (NaN if none)."""
-    has = nodes[column].notna()
-    rank = np.where(nodes["at_ref"] & has, 0, np.where(has, 1, 2))
-    order = pd.DataFrame({"record_id": nodes["record_id"], "rank": rank, "pos": np.arange(len(nodes))})
-    best = order.sort_values(["record_id", "rank", "pos"], kind="stable").groupby("record_id").head(1)
-    best = best[best["rank"] < 2].set_index("record_id")["pos"]
-    return nodes["record_id"].map(best)
+def _reference_rows(nodes: pd.DataFrame, column: str) -> np.ndarray:
+    """Per node, the position of its record's reference row for ``column``: the 298.15 K
+    row if it is tabulated with a value, else the first row that has a value (NaN if none)."""
+    n = len(nodes)
+    code = pd.factorize(nodes["record_id"])[0]
+    has = nodes[column].notna().to_numpy()
+    rank = np.where(nodes["at_ref"].to_numpy(bool) & has, 0, np.where(has, 1, 2))
+    # per record the smallest (rank, position), as one integer key
+    key = rank.astype(np.int64) * (n + 1) + np.arange(n)
+    best = np.full(code.max() + 1 if n else 0, 3 * (n + 1), dtype=np.int64)
+    np.minimum.at(best, code, key)
+    best = best[code]
+    return np.where(best // (n + 1) < 2, (best % (n + 1)).astype(float), np.nan)
 
 
 def _worst_per_record(df: pd.DataFrame, ratio: str) -> pd.DataFrame:
@@ -76,24 +80,29 @@ def _integral_check(ctx: CheckContext, cid: str, column: str, integral: str, pch
     if not len(nodes):
         return empty_findings()
     ref = _reference_rows(nodes, column)
-    ok = (ref.notna() & nodes[column].notna()).to_numpy()
-    full, ref = nodes[ok], ref[ok].astype(int).to_numpy()   # ``nodes`` is indexed by position
-    at_ref = nodes.loc[ref]
-    tab = full[column].to_numpy(float) - at_ref[column].to_numpy(float)
-    spl = full[integral].to_numpy(float) - at_ref[integral].to_numpy(float)
-    pch = full[pchip].to_numpy(float) - at_ref[pchip].to_numpy(float)
+    col = nodes[column].to_numpy(float)
+    pos = np.flatnonzero(np.isfinite(ref) & ~np.isnan(col))      # ``nodes`` is indexed by position
+    ref = ref[pos].astype(np.int64)
+    tab = col[pos] - col[ref]
+    ints = nodes[integral].to_numpy(float)
+    spl = ints[pos] - ints[ref]
+    ints = nodes[pchip].to_numpy(float)
+    pch = ints[pos] - ints[ref]
     est = np.abs(spl - pch)
     tol = np.maximum(tol_abs, tol_rel * np.abs(tab)) + est
     res = tab - spl
     with np.errstate(invalid="ignore"):
         ratio = np.abs(res) / tol
-    t_ref = at_ref["t_k"].to_numpy(float)
-    frame = full.assign(tab=tab, spl=spl, est=est, tol=tol, res=res, ratio=ratio, t_ref=t_ref)
-    bad = frame[frame["ratio"] > 1]
-    if not len(bad):
+    bad = ratio > 1
+    if not bad.any():
         return empty_findings()
-    w = _worst_per_record(bad, "ratio")
-    n_rows = frame.groupby("record_id")["record_id"].size()
+    t_ref = nodes["t_k"].to_numpy(float)[ref]
+    frame = nodes.iloc[pos[bad]].assign(tab=tab[bad], spl=spl[bad], est=est[bad], tol=tol[bad], res=res[bad],
+                                        ratio=ratio[bad], t_ref=t_ref[bad])
+    w = _worst_per_record(frame, "ratio")
+    # rows compared per record (those with a value and a reference row)
+    code, uniq = pd.factorize(nodes["record_id"].to_numpy(object)[pos])
+    n_rows = pd.Series(np.bincount(code, minlength=len(uniq)), index=uniq)
     msgs, hints = [], []
     for r in w.itertuples(index=False):
         ref_txt = ("298.15 K" if abs(r.t_ref - T_REF) <= T_REF_MATCH_K
@@ -150,6 +159,12 @@ def table_entropy_integral(ctx: CheckContext) -> pd.DataFrame:
 
 
 def _row_frame(ctx: CheckContext) -> pd.DataFrame:
+    """Table rows above 0 K with their record's species; computed once per context (the
+    identity checks share it; callers must not modify it)."""
+    return ctx.cached("tables.row_frame", lambda: _table_rows(ctx))
+
+
+def _table_rows(ctx: CheckContext) -> pd.DataFrame:
     tables = ctx.records.loc[ctx.records["kind"] == "table", ["record_id", "species"]]
     tp = ctx.table_points
     tp = tp[member(tp["record_id"], tables["record_id"]) & (tp["t_k"] > 0)]

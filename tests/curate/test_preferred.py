@@ -40,3 +40,19 @@ def test_unwaived_error_demotes_and_waived_does_not():
         "best of 3: the other records have unwaived error findings"
     p = choose_preferred(_records(), SOURCES, _errors("X(g)", "c", waived=True)).set_index("species")
     assert p.loc["X(g)", "preferred_record_id"] == "c/X"
+
+
+def test_single_record_species_among_others():
+    """A species with one record keeps it ("only record"), also when it has an error; the
+    result has one row per species, sorted by species key, whichever order records come in."""
+    extra = pd.DataFrame({"record_id": ["a/W", "e/Z"], "species": ["W(g)", "Z(cr)"], "source_id": ["a", "e"],
+                          "kind": ["table", "polynomial"], "t_low_k": 100.0, "t_high_k": 900.0})
+    recs = pd.concat([extra.iloc[[1]], _records(), extra.iloc[[0]]], ignore_index=True)
+    p = choose_preferred(recs, SOURCES, _errors("W(g)", "a"))
+    assert list(p["species"]) == ["W(g)", "X(g)", "Y(g)", "Z(cr)"]
+    got = p.set_index("species")
+    assert got.loc["W(g)", "preferred_record_id"] == "a/W" and got.loc["W(g)", "preferred_reason"] == "only record"
+    assert got.loc["Z(cr)", "preferred_record_id"] == "e/Z"
+    assert got.loc["X(g)", "preferred_record_id"] == "c/X" and got.loc["Y(g)", "preferred_record_id"] == "e/Y"
+    only = choose_preferred(extra, SOURCES)
+    assert list(only["preferred_record_id"]) == ["a/W", "e/Z"] and set(only["preferred_reason"]) == {"only record"}
