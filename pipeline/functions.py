@@ -488,6 +488,17 @@ def member(values, pool) -> np.ndarray:
 
     if isinstance(pool, (set, frozenset)):
         pool = list(pool)
+    if _arrow_text(values):     # Arrow-backed text: its buffers as they are, no Python objects
+        if isinstance(pool, (pd.Series, pd.Index)):
+            pool = pool.to_numpy(object)
+        try:
+            pa_pool = pa.array(np.asarray(pool, dtype=object), type=pa.large_string(), from_pandas=False)
+        except (pa.ArrowInvalid, pa.ArrowTypeError):
+            pa_pool = None
+        if pa_pool is not None and not pa_pool.null_count:
+            va = pa.array(values.array).cast(pa.large_string())
+            return np.asarray(pc.is_in(va, value_set=pa_pool, skip_nulls=True).to_numpy(zero_copy_only=False),
+                              dtype=bool)
     vals = values.to_numpy(object) if isinstance(values, (pd.Series, pd.Index)) else np.asarray(values, dtype=object)
     p = pool.to_numpy(object) if isinstance(pool, (pd.Series, pd.Index)) else np.asarray(pool, dtype=object)
     try:
@@ -498,6 +509,27 @@ def member(values, pool) -> np.ndarray:
     if pa_pool.null_count:
         return pd.Series(vals, dtype=object).isin(p).to_numpy(bool)
     return pc.is_in(va, value_set=pa_pool, skip_nulls=True).to_numpy(zero_copy_only=False)
+
+
+def map_keys(values, mapping: pd.Series) -> np.ndarray:
+    """``mapping[v]`` for each text key ``v`` of ``values`` (NaN, or None for object values,
+    where ``mapping`` has no such key), as an array.
+
+    Each distinct key is looked up once: ``values`` is factorized first (Arrow-backed text
+    by Arrow's dictionary encoding), so a long column of repeated keys (table rows → their
+    record) costs one pass instead of a hash lookup of a Python string per row.
+    """
+    codes, uniq = pd.factorize(values)
+    mapped = mapping.reindex(np.asarray(uniq, dtype=object)).to_numpy()
+    missing = None if mapped.dtype == object else np.nan
+    return np.append(mapped, np.array([missing], dtype=mapped.dtype))[codes]   # code −1 → missing
+
+
+def _arrow_text(values) -> bool:
+    """Whether ``values`` is a pandas Series or Index of Arrow-backed strings."""
+    dtype = getattr(values, "dtype", None)
+    return (isinstance(values, (pd.Series, pd.Index)) and isinstance(dtype, pd.StringDtype)
+            and dtype.storage == "pyarrow")
 
 
 def preferred_record_ids(records: pd.DataFrame, sources: pd.DataFrame | None = None,

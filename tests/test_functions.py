@@ -235,3 +235,36 @@ def test_evaluate_codes_equals_evaluate_bit_for_bit():
     only = ctx.functions.evaluate_codes(ids, np.array([1, 3, 1]), np.array([300.0, 900.0, 2900.0]))
     np.testing.assert_array_equal(only.h, ctx.functions.evaluate(ids[[1, 3, 1]], [300.0, 900.0, 2900.0]).h)
     assert ctx.functions.evaluate_codes(ids, np.array([], dtype=int), np.array([])).cp.shape == (0,)
+
+
+@pytest.mark.parametrize("pool_kind", ["array", "set", "series", "empty", "numbers"])
+def test_member_is_pandas_isin(pool_kind):
+    """``member`` (Arrow's hash kernel, on Arrow-backed text without converting it) gives
+    exactly pandas' ``isin``: nulls are members of nothing, any pool type is accepted."""
+    from pipeline.functions import member
+
+    values = pd.Series(["a/X", "b/X", None, "c/Y", "a/X", "", "d/Z"])
+    assert isinstance(values.dtype, pd.StringDtype) and values.dtype.storage == "pyarrow"
+    base = ["a/X", "", "q/Q"]
+    pool = {"array": np.array(base, dtype=object), "set": set(base), "series": pd.Series(base),
+            "empty": np.array([], dtype=object), "numbers": [1, 2]}[pool_kind]
+    expected = pd.Series(values.to_numpy(object), dtype=object).isin(list(pool)).to_numpy(bool)
+    for v in (values, pd.Index(values), values.to_numpy(object)):
+        got = member(v, pool)
+        assert got.dtype == bool and got.tolist() == expected.tolist()
+
+
+def test_map_keys_is_series_map():
+    """``map_keys`` (each distinct key looked up once) gives ``Series.map``'s values, with
+    NaN or None where the key is missing, for Arrow-backed and object keys."""
+    from pipeline.functions import map_keys
+
+    keys = pd.Series(["b", "a", None, "zz", "a", "b"])
+    for mapping in (pd.Series([1.5, 2.5], index=["a", "b"]),
+                    pd.Series(np.array(["A(g)", "B(g)"], dtype=object), index=["a", "b"])):
+        for k in (keys, keys.astype(object), keys.to_numpy(object)):
+            got = map_keys(k, mapping)
+            want = pd.Series(np.asarray(k, dtype=object)).map(mapping).to_numpy()
+            assert len(got) == len(want)
+            for g, w in zip(got, want):
+                assert (pd.isna(g) and pd.isna(w)) or g == w

@@ -10,6 +10,7 @@ import pandas as pd
 
 from ..constants import CAL_TH_J, R_LN_ATM
 from ..findings import empty_findings, make_findings
+from ..functions import member
 from .context import CheckContext
 from .registry import check
 
@@ -24,6 +25,7 @@ def record_pairs(ctx: CheckContext) -> pd.DataFrame:
     Columns: ``pair, species, state, rid_a, rid_b, src_a, src_b, lo, hi`` (common range [K]).
     """
     rec = ctx.records[["record_id", "species", "source_id", "t_low_k", "t_high_k"]]
+    rec = rec[rec["species"].duplicated(keep=False).to_numpy()]     # a species with one record has no pair
     pairs = rec.merge(rec, on="species", suffixes=("_a", "_b"))
     pairs = pairs[pairs["record_id_a"] < pairs["record_id_b"]]
     lo = np.maximum(pairs["t_low_k_a"].to_numpy(float), pairs["t_low_k_b"].to_numpy(float))
@@ -56,16 +58,23 @@ def pair_grid(ctx: CheckContext, pairs: pd.DataFrame, spacing_k: float) -> pd.Da
     k = np.arange(n.sum()) - np.repeat(np.cumsum(n) - n, n)
     t = np.repeat(pairs["lo"].to_numpy(float), n) + np.repeat(width, n) * k / np.repeat(n - 1, n)
     grid = [pd.DataFrame({"pair": p, "t_k": t})]
-    nodes = pd.concat([
-        ctx.table_points[["record_id", "t_k"]],
-        ctx.segments[["record_id", "t_low_k"]].rename(columns={"t_low_k": "t_k"}),
-        ctx.segments[["record_id", "t_high_k"]].rename(columns={"t_high_k": "t_k"})], ignore_index=True)
+    nodes = _nodes(ctx, np.concatenate([pairs["rid_a"].to_numpy(object), pairs["rid_b"].to_numpy(object)]))
     for side in ("rid_a", "rid_b"):
         m = pairs[["pair", side, "lo", "hi"]].merge(nodes, left_on=side, right_on="record_id")
         m = m[(m["t_k"] >= m["lo"]) & (m["t_k"] <= m["hi"])]
         grid.append(m[["pair", "t_k"]])
     g = pd.concat(grid, ignore_index=True).astype({"t_k": float})
     return g.drop_duplicates().sort_values(["pair", "t_k"], kind="stable").reset_index(drop=True)
+
+
+def _nodes(ctx: CheckContext, record_ids: np.ndarray) -> pd.DataFrame:
+    """``record_id, t_k``: every tabulated temperature and segment boundary of the records
+    ``record_ids`` (selected by hash lookup: the database's nodes are never merged whole)."""
+    tp, seg = ctx.table_points, ctx.segments
+    tp = tp.loc[member(tp["record_id"], record_ids), ["record_id", "t_k"]]
+    seg = seg.loc[member(seg["record_id"], record_ids), ["record_id", "t_low_k", "t_high_k"]]
+    return pd.concat([tp, seg[["record_id", "t_low_k"]].rename(columns={"t_low_k": "t_k"}),
+                      seg[["record_id", "t_high_k"]].rename(columns={"t_high_k": "t_k"})], ignore_index=True)
 
 
 def _constant(x: pd.Series, group: np.ndarray, rel: float) -> pd.DataFrame:

@@ -26,9 +26,10 @@ def cp_nonpositive(ctx: CheckContext) -> pd.DataFrame:
     seg = ctx.segment_species
     if len(seg):
         ext = segment_cp_extrema(ctx)        # shared with the other Cp checks (computed once)
-        seg = seg.assign(t_min=ext["t_min_k"].to_numpy(float), cp_min=ext["cp_min"].to_numpy(float))
-        worst = seg.loc[seg.groupby("record_id")["cp_min"].idxmin()]
-        bad = worst[worst["cp_min"] <= 0]
+        cp_min = ext["cp_min"].to_numpy(float)
+        low = cp_min <= 0                    # the failing segments, then the worst per record
+        seg = seg[low].assign(t_min=ext["t_min_k"].to_numpy(float)[low], cp_min=cp_min[low])
+        bad = seg.loc[seg.groupby("record_id")["cp_min"].idxmin()]
         if len(bad):
             parts.append(make_findings(
                 check_id="cp.nonpositive", severity="error", subject=bad["species"],
@@ -39,11 +40,9 @@ def cp_nonpositive(ctx: CheckContext) -> pd.DataFrame:
                 hint="a sign or exponent typo in a coefficient, or a fit used far outside its data"))
     tp = ctx.table_points
     if len(tp):
-        tp = tp[(tp["t_k"] > 0) & tp["cp_j_mol_k"].notna()]
+        tp = tp[((tp["t_k"] > 0) & (tp["cp_j_mol_k"] <= 0)).to_numpy()]   # failing rows only
         tp = tp.merge(ctx.records[["record_id", "species"]], on="record_id", how="left")
-        idx = tp.groupby("record_id")["cp_j_mol_k"].idxmin()
-        worst = tp.loc[idx]
-        bad = worst[worst["cp_j_mol_k"] <= 0]
+        bad = tp.loc[tp.groupby("record_id")["cp_j_mol_k"].idxmin()]
         if len(bad):
             parts.append(make_findings(
                 check_id="cp.nonpositive", severity="error", subject=bad["species"],

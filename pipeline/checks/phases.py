@@ -196,6 +196,25 @@ def _margins(ctx, forms, pairs) -> pd.DataFrame:
     return worst.rename(columns={"dg": "margin", "b": "below"})[["t_k", "margin", "below"]]
 
 
+def _maybe_two_species(stoich_json: pd.Series) -> np.ndarray:
+    """Whether each stoichiometry JSON text may hold exactly two species: one '": ' per
+    species unless a key holds an escaped quote (a backslash); counted by Arrow's plain
+    substring kernels, without Python strings (nulls: False)."""
+    import pyarrow as pa
+    import pyarrow.compute as pc
+
+    try:
+        a = pa.array(stoich_json.array if isinstance(stoich_json.dtype, pd.StringDtype)
+                     else stoich_json.to_numpy(object), type=None, from_pandas=True)
+        if not (pa.types.is_string(a.type) or pa.types.is_large_string(a.type)):
+            a = a.cast(pa.large_string())
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        txt = stoich_json.astype(object).where(stoich_json.notna(), "").astype(str)
+        return ((txt.str.count('": ') == 2) | txt.str.contains("\\", regex=False)).to_numpy(bool)
+    two = pc.or_(pc.equal(pc.count_substring(a, '": '), 2), pc.match_substring(a, "\\"))
+    return np.asarray(two.fill_null(False).to_numpy(zero_copy_only=False), dtype=bool)
+
+
 def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
     """Reactions between two species of the same composition: ``reaction_id, source_id,
     quantity, t_k, value, uncertainty, react, prod, nu`` (ν of the product, > 0)."""
@@ -205,10 +224,7 @@ def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
     rx = rx[rx["quantity"].isin(["drg", "drh"])]
     # only two-species reactions can be transitions: without a backslash (no escaped quote
     # in a key) a stoich JSON has exactly one '": ' per species, so the rest are not parsed
-    js = rx["stoich_json"].astype(object).where(rx["stoich_json"].notna(), "")
-    txt = js.astype(str)
-    maybe = (txt.str.count('": ', ) == 2) | txt.str.contains("\\", regex=False)
-    rx = rx[maybe.to_numpy(bool)]
+    rx = rx[_maybe_two_species(rx["stoich_json"])]
     st = rx["stoich_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
     two = st.map(len) == 2
     rx, st = rx[two], st[two]

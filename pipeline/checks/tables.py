@@ -19,7 +19,7 @@ import pandas as pd
 
 from ..constants import LN10, R, T_REF
 from ..findings import empty_findings, make_findings
-from ..functions import T_REF_MATCH_K, TableCurves, member
+from ..functions import T_REF_MATCH_K, TableCurves, map_keys, member
 from .context import CheckContext
 from .registry import check
 
@@ -41,7 +41,7 @@ def _table_nodes(ctx: CheckContext) -> pd.DataFrame:
     spline = anchored.curves
     nodes = anchored.points.iloc[spline.source_pos]
     sp_of = pd.Series(tables["species"].to_numpy(object), index=tables["record_id"].to_numpy(object))
-    nodes = nodes.assign(species=sp_of.reindex(nodes["record_id"].to_numpy(object)).to_numpy(object))
+    nodes = nodes.assign(species=map_keys(nodes["record_id"], sp_of))
     if not len(nodes):
         return nodes.reset_index(drop=True)
     pchip = TableCurves.from_points(nodes, "pchip")
@@ -264,6 +264,43 @@ def element_counts(species: pd.DataFrame, elements: pd.DataFrame | None = None) 
     return out[out["n"] != 0]
 
 
+def _row_elements(species: pd.Series, counts: pd.DataFrame):
+    """The element counts of each row's species, long: ``row`` (position in ``species``),
+    ``element`` (code into the returned ``elements``) and ``n`` (arrays; rows in order, each
+    species' elements in ``counts`` order). Species are matched by code, not by merging
+    text keys row by row."""
+    code, uniq = pd.factorize(species)
+    counts = counts[member(counts["species"], uniq)]
+    c = pd.Index(uniq).get_indexer(counts["species"].to_numpy(object))
+    el_code, elements = pd.factorize(counts["element"].to_numpy(object))
+    order = np.argsort(c, kind="stable")
+    c, el, n = c[order], el_code[order], counts["n"].to_numpy(float)[order]
+    per = np.bincount(c, minlength=len(uniq))
+    start = np.cumsum(per) - per
+    rep = per[code]
+    row = np.repeat(np.arange(len(code)), rep)
+    pos = np.repeat(start[code], rep) + (np.arange(rep.sum()) - np.repeat(np.cumsum(rep) - rep, rep))
+    return row, el[pos], n[pos], np.asarray(elements, dtype=object)
+
+
+def _reference_entropy_at(ref: pd.DataFrame, elements: np.ndarray, el_code: np.ndarray,
+                          t_k: np.ndarray, row: np.ndarray) -> np.ndarray:
+    """``s_atom`` of :func:`reference_entropies` (``ref``) for each pair (element
+    ``elements[el_code]``, temperature ``t_k[row]``); NaN where the element has no
+    reference form at that T. A dense element × temperature table, looked up by code."""
+    out = np.full(len(el_code), np.nan)
+    if not len(ref) or not len(el_code):
+        return out
+    t_code, t_u = pd.factorize(np.asarray(t_k, float))
+    t_u = np.asarray(t_u, float)
+    re = pd.Index(elements).get_indexer(ref["element"].to_numpy(object))
+    rt = pd.Index(t_u).get_indexer(ref["t_k"].to_numpy(float))    # ref's T are exactly these
+    ok = (re >= 0) & (rt >= 0)
+    table = np.full((len(elements), len(t_u)), np.nan)
+    table[re[ok], rt[ok]] = ref["s_atom"].to_numpy(float)[ok]
+    return table[el_code, t_code[row]]
+
+
 def reference_entropies(ctx: CheckContext, t_k: np.ndarray) -> pd.DataFrame:
     """Entropy per atom [J/(mol*K)] of each element's reference form at each temperature.
 
@@ -326,16 +363,16 @@ def table_formation_identity(ctx: CheckContext) -> pd.DataFrame:
     t = rows["t_k"].to_numpy(float)
     s_species = ctx.functions.evaluate(rows["record_id"].to_numpy(object), t).s
     rows = rows.assign(row=np.arange(len(rows)), s=s_species)
-    long = rows[["row", "species"]].merge(element_counts(ctx.species, ctx.elements), on="species", how="inner")
-    long["t_k"] = t[long["row"].to_numpy(int)]
-    ref = reference_entropies(ctx, t)
-    long = long.merge(ref, on=["element", "t_k"], how="left")
-    long["ns"] = long["n"] * long["s_atom"]
-    s_ref = long.groupby("row")["ns"].sum()
-    s_ref[long["ns"].isna().groupby(long["row"]).any()] = np.nan
-    missing = long[long["s_atom"].isna()].merge(rows[["row", "record_id"]], on="row")
-    rows["s_ref"] = rows["row"].map(s_ref)
-    rows.loc[~rows["row"].isin(long["row"]), "s_ref"] = 0.0   # no elements (the electron itself)
+    row, el_code, n, elements = _row_elements(rows["species"], element_counts(ctx.species, ctx.elements))
+    s_atom = _reference_entropy_at(reference_entropies(ctx, t), elements, el_code, t, row)
+    # Σ n_e S_ref,e per row: NaN if any element has no reference form at T; 0 with no
+    # elements (the electron itself)
+    gap = np.isnan(s_atom)
+    s_ref = np.bincount(row, weights=np.where(gap, 0.0, n * s_atom), minlength=len(rows))
+    s_ref[np.bincount(row, weights=gap, minlength=len(rows)) > 0] = np.nan
+    rows["s_ref"] = s_ref
+    missing = pd.DataFrame({"record_id": rows["record_id"].to_numpy(object)[row[gap]],
+                            "element": elements[el_code[gap]]})
     parts = []
     if len(missing):
         miss = missing.groupby("record_id")["element"].agg(lambda e: ", ".join(sorted(set(e))))

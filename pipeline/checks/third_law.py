@@ -7,7 +7,7 @@ from scipy.linalg import solve_banded
 
 from ..constants import R, R_LN_ATM
 from ..findings import empty_findings, make_findings
-from ..functions import member
+from ..functions import map_keys, member
 from ..physics import debye_entropy, debye_temperature, sackur_tetrode_entropy
 from ..thermo import COEF_COLUMNS, evaluate
 from .context import CheckContext
@@ -333,22 +333,21 @@ def thirdlaw_gas_entropy_floor(ctx: CheckContext) -> pd.DataFrame:
     cid = "thirdlaw.gas-entropy-floor"
     tol = ctx.tol(cid, "j_mol_k")
     mm = ctx.species.set_index("species")["molar_mass_g_mol"]
-    cands = []
+    cands = []      # the failing points only: (S − S_tr) < −tol
     seg = ctx.segment_species
     is_gas = (seg["state"] == "g").to_numpy(bool)
-    seg = seg[is_gas]
-    if len(seg):
-        coef = seg[list(COEF_COLUMNS)].to_numpy(float)
-        lo, hi = seg["t_low_k"].to_numpy(float), seg["t_high_k"].to_numpy(float)
+    if is_gas.any():
+        coef = seg[list(COEF_COLUMNS)].to_numpy(float)[is_gas]
+        lo, hi = seg["t_low_k"].to_numpy(float)[is_gas], seg["t_high_k"].to_numpy(float)[is_gas]
         cp_min = segment_cp_extrema(ctx)["cp_min"].to_numpy(float)[is_gas]
         dense = np.flatnonzero(cp_min < CP_TRANSLATION_R * R)
-        m = seg["species"].map(mm).to_numpy(float)
+        m = map_keys(seg["species"], mm).astype(float)[is_gas]
         # ends of every segment; a 257-point grid only where Cp dips below 5/2 R
         t = np.stack([lo, hi], axis=1)
         s = evaluate(coef[:, None, :], t).s
         f = s - sackur_tetrode_entropy(t, m[:, None], ctx.p_db_bar)
         i = np.argmin(np.where(np.isfinite(f), f, np.inf), axis=1)
-        rows = np.arange(len(seg))
+        rows = np.arange(len(coef))
         t_w, s_w, f_w = t[rows, i], s[rows, i], f[rows, i]
         if len(dense):
             grid = np.linspace(0.0, 1.0, 257)
@@ -361,32 +360,31 @@ def thirdlaw_gas_entropy_floor(ctx: CheckContext) -> pd.DataFrame:
             t_w[dense] = np.where(better, td[r, j], t_w[dense])
             s_w[dense] = np.where(better, sd[r, j], s_w[dense])
             f_w[dense] = np.where(better, fd[r, j], f_w[dense])
-        cands.append(pd.DataFrame({
-            "record_id": seg["record_id"].to_numpy(object), "species": seg["species"].to_numpy(object),
-            "source_id": seg["source_id"].to_numpy(object), "t_k": t_w, "s": s_w, "f": f_w}))
+        fail = f_w < -tol
+        if fail.any():
+            ids = seg[["record_id", "species", "source_id"]].iloc[np.flatnonzero(is_gas)[fail]]
+            cands.append(pd.DataFrame({c: ids[c].to_numpy(object) for c in ids.columns}
+                                      | {"t_k": t_w[fail], "s": s_w[fail], "f": f_w[fail]}))
     tp = ctx.table_points
     if len(tp):
         rs = ctx.record_species
         gas_tab = rs[(rs["state"] == "g") & (rs["kind"] == "table")]
         pts = tp[member(tp["record_id"], gas_tab["record_id"]) & (tp["t_k"] > 0) & tp["s_j_mol_k"].notna()]
         if len(pts):
-            pts = pts.merge(gas_tab[["record_id", "species"]], on="record_id", how="left")
-            st = sackur_tetrode_entropy(pts["t_k"].to_numpy(float),
-                                        pts["species"].map(mm).to_numpy(float), ctx.p_db_bar)
-            cands.append(pd.DataFrame({
-                "record_id": pts["record_id"].to_numpy(object), "species": pts["species"].to_numpy(object),
-                "source_id": pts["source_id"].to_numpy(object), "t_k": pts["t_k"].to_numpy(float),
-                "s": pts["s_j_mol_k"].to_numpy(float), "f": pts["s_j_mol_k"].to_numpy(float) - st}))
+            species = map_keys(pts["record_id"], gas_tab.drop_duplicates("record_id").set_index("record_id")["species"])
+            t_p, s_p = pts["t_k"].to_numpy(float), pts["s_j_mol_k"].to_numpy(float)
+            f_p = s_p - sackur_tetrode_entropy(t_p, map_keys(species, mm).astype(float), ctx.p_db_bar)
+            fail = f_p < -tol
+            if fail.any():
+                ids = pts[["record_id", "source_id"]][fail]
+                cands.append(pd.DataFrame({
+                    "record_id": ids["record_id"].to_numpy(object), "species": species[fail],
+                    "source_id": ids["source_id"].to_numpy(object), "t_k": t_p[fail], "s": s_p[fail],
+                    "f": f_p[fail]}))
     if not cands:
         return empty_findings()
     c = pd.concat(cands, ignore_index=True)
-    c = c[np.isfinite(c["f"])]
-    if len(c) == 0:
-        return empty_findings()
-    worst = c.loc[c.groupby("record_id")["f"].idxmin()]
-    bad = worst[worst["f"] < -tol]
-    if len(bad) == 0:
-        return empty_findings()
+    bad = c.loc[c.groupby("record_id")["f"].idxmin()]
     f = bad["f"].to_numpy(float)
     s = bad["s"].to_numpy(float)
     s_tr = s - f

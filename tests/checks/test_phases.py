@@ -216,3 +216,20 @@ def test_metastable_in_blocks_and_against_the_lowest_form_per_temperature(monkey
     assert "C(cr,diamond)" in list(whole["subject"])
     assert list(blocked["subject"]) == list(whole["subject"])
     assert blocked["observed"].to_numpy() == pytest.approx(whole["observed"].to_numpy())
+
+
+def test_two_species_prefilter_never_drops_a_two_species_reaction():
+    """The text prefilter of transition reactions may keep too many (they are parsed
+    next) but must keep every stoichiometry with exactly two species, escaped keys too."""
+    import json
+
+    from pipeline.checks.phases import _maybe_two_species
+
+    maps = [{"H2O(cr)": -1, "H2O(l)": 1}, {"A(g)": -1}, {"A(g)": -1, "B(g)": 1, "C(g)": 1},
+            {'X"Y(g)': -1, "Z(g)": 1}, {"S(cr,a)": -0.5, "S(cr,b)": 0.5}]
+    texts = [json.dumps(m) for m in maps] + [None]
+    for s in (pd.Series(texts), pd.Series(texts, dtype=object)):
+        keep = _maybe_two_species(s)
+        truth = [isinstance(t, str) and len(json.loads(t)) == 2 for t in texts]
+        assert all(k for k, t in zip(keep, truth) if t), (keep, truth)
+        assert not keep[1] and not keep[2] and not keep[-1]
