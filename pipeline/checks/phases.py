@@ -198,21 +198,18 @@ def _margins(ctx, forms, pairs) -> pd.DataFrame:
 
 def _maybe_two_species(stoich_json: pd.Series) -> np.ndarray:
     """Whether each stoichiometry JSON text may hold exactly two species: one '": ' per
-    species unless a key holds an escaped quote (a backslash); counted by Arrow's plain
-    substring kernels, without Python strings (nulls: False)."""
-    import pyarrow as pa
-    import pyarrow.compute as pc
+    species unless a key holds an escaped quote (a backslash); nulls: False. Arrow-backed
+    text is counted by Arrow's substring kernels, Python strings by ``str.count`` (never
+    converted from one to the other: that costs more than the count)."""
+    if isinstance(stoich_json.dtype, pd.StringDtype) and stoich_json.dtype.storage == "pyarrow":
+        import pyarrow as pa
+        import pyarrow.compute as pc
 
-    try:
-        a = pa.array(stoich_json.array if isinstance(stoich_json.dtype, pd.StringDtype)
-                     else stoich_json.to_numpy(object), type=None, from_pandas=True)
-        if not (pa.types.is_string(a.type) or pa.types.is_large_string(a.type)):
-            a = a.cast(pa.large_string())
-    except (pa.ArrowInvalid, pa.ArrowTypeError):
-        txt = stoich_json.astype(object).where(stoich_json.notna(), "").astype(str)
-        return ((txt.str.count('": ') == 2) | txt.str.contains("\\", regex=False)).to_numpy(bool)
-    two = pc.or_(pc.equal(pc.count_substring(a, '": '), 2), pc.match_substring(a, "\\"))
-    return np.asarray(two.fill_null(False).to_numpy(zero_copy_only=False), dtype=bool)
+        a = pa.array(stoich_json.array)
+        two = pc.or_(pc.equal(pc.count_substring(a, '": '), 2), pc.match_substring(a, "\\"))
+        return np.asarray(two.fill_null(False).to_numpy(zero_copy_only=False), dtype=bool)
+    return np.fromiter((isinstance(j, str) and (j.count('": ') == 2 or "\\" in j)
+                        for j in stoich_json.to_numpy(object)), dtype=bool, count=len(stoich_json))
 
 
 def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
@@ -221,10 +218,12 @@ def _transition_reactions(ctx: CheckContext) -> pd.DataFrame:
     rx = ctx.reactions
     if not len(rx):
         return pd.DataFrame()
-    rx = rx[rx["quantity"].isin(["drg", "drh"])]
     # only two-species reactions can be transitions: without a backslash (no escaped quote
-    # in a key) a stoich JSON has exactly one '": ' per species, so the rest are not parsed
-    rx = rx[_maybe_two_species(rx["stoich_json"])]
+    # in a key) a stoich JSON has exactly one '": ' per species, so the rest are not parsed;
+    # the rows and columns used are selected once
+    keep = rx["quantity"].isin(["drg", "drh"]).to_numpy(bool) & _maybe_two_species(rx["stoich_json"])
+    rx = rx[["reaction_id", "source_id", "quantity", "t_k", "value", "uncertainty", "stoich_json"]].iloc[
+        np.flatnonzero(keep)]
     st = rx["stoich_json"].map(lambda j: json.loads(j) if isinstance(j, str) else {})
     two = st.map(len) == 2
     rx, st = rx[two], st[two]
