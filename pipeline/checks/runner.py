@@ -9,7 +9,8 @@ context's frames without copying or pickling them, while this process runs the r
 forked process sends its findings back through a pipe. A check that fails in either
 process becomes an error finding (:func:`safe_run`), as in a serial run; if the forked
 process cannot start or dies, its checks run here. The findings are returned in the
-order of ``specs`` either way.
+order of ``specs`` either way; side tables the forked checks put in ``ctx.tables_out``
+come back with them (its other context caches do not).
 """
 from __future__ import annotations
 
@@ -83,7 +84,8 @@ def run_checks(ctx, specs: Sequence[CheckSpec], progress: Callable[[str, int, in
             progress(f"check {spec.id}", i, len(specs))
         found[spec.id] = safe_run(spec, ctx)
     if worker is not None:
-        got = worker.results()
+        got, tables = worker.results()
+        ctx.tables_out.update(tables)
         for i, spec in enumerate(other):
             if spec.id not in got:          # the forked process did not deliver: run it here
                 if progress is not None:
@@ -117,24 +119,28 @@ class _Forked:
             gc.unfreeze()
             send.close()
 
-    def results(self) -> dict[str, pd.DataFrame]:
-        """check id → findings of the forked process; {} if it failed to deliver."""
+    def results(self) -> tuple[dict[str, pd.DataFrame], dict]:
+        """(check id → findings, the side tables the checks added to ``ctx.tables_out``)
+        of the forked process; ({}, {}) if it failed to deliver."""
         if self.proc is None:
-            return {}
+            return {}, {}
         try:
-            got = dict(self.conn.recv())
+            found, tables = self.conn.recv()
+            got = dict(found)
         except (EOFError, OSError):
-            got = {}
+            got, tables = {}, {}
         finally:
             self.conn.close()
             self.proc.join()
-        return got
+        return got, tables
 
 
 def _child(conn, ctx, specs: list[CheckSpec]) -> None:
     """The forked process: run ``specs`` and send their findings (the arguments of a
     forked process are inherited, not pickled)."""
     try:
-        conn.send([(s.id, safe_run(s, ctx)) for s in specs])
+        before = dict(ctx.tables_out)
+        found = [(s.id, safe_run(s, ctx)) for s in specs]
+        conn.send((found, {k: v for k, v in ctx.tables_out.items() if before.get(k) is not v}))
     finally:
         conn.close()

@@ -119,3 +119,17 @@ def test_second_share_names_registered_checks():
     """A renamed check must not silently fall out of the forked share."""
     ids = {s.id for s in registry.runnable("check")}
     assert runner.SECOND_PROCESS_CHECKS <= ids
+
+
+@needs_fork
+def test_side_tables_of_forked_checks_come_back(frames):
+    """A check that leaves a side table in ``ctx.tables_out`` (as the network check does
+    with ``reconciled``) leaves it in this process's context too when it ran in the fork."""
+    def with_table(ctx):
+        ctx.tables_out["test_side"] = pd.DataFrame({"pid": [os.getpid()]})
+        return _where(ctx)
+
+    spec = _spec("test.side", with_table)
+    ctx = _ctx(frames)
+    got, = runner.run_checks(ctx, [spec], split=True, second=frozenset({spec.id}))
+    assert ctx.tables_out["test_side"]["pid"].iloc[0] == got["observed"].iloc[0] != os.getpid()
