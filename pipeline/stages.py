@@ -238,8 +238,9 @@ def stage_check(run: Run) -> None:
                                     if run.findings_parts else None)
     specs = [s for s in registry.runnable("check") if s.id not in run.config.disabled]
     # on a large database part of the checks run in a forked process (checks.runner), when
-    # a CPU is free for it: the network fit's worker takes one (measured at 10⁵ on 2 CPUs:
-    # splitting as well made the run 3.6 s slower, the shared context being built twice)
+    # a CPU is free for it: the network fit's worker takes one (both on one spare CPU gain
+    # nothing and build the shared context twice; at 10⁵ on 2 CPUs check + reconcile took
+    # 21.1 s with both, 18.4 s with the fit alone, on a machine whose noise is ±3 s)
     split = None if (os.cpu_count() or 1) - 1 - fitting >= 1 else False
     for spec, found in zip(specs, run_checks(ctx, specs, run.progress, split=split)):
         run.extra.setdefault("checks_ran", []).append(spec.id)
