@@ -6,7 +6,9 @@ S(T) = S°(298.15) + Cp ln(T/298.15).
 """
 from __future__ import annotations
 
+import importlib.util
 import json
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -65,3 +67,12 @@ def reference_meta(*keys: str) -> pd.DataFrame:
 def network_context(poly=(), tables=(), rx=None, refs=("C(cr,graphite)",), config=None):
     return context(poly=list(poly), tables=list(tables), species_meta=reference_meta(*refs), reactions=rx,
                    config=config)
+
+
+def network_bench():
+    """bench/network_scale.py as a module (its synthetic network generator)."""
+    spec = importlib.util.spec_from_file_location(
+        "network_scale", Path(__file__).resolve().parents[2] / "bench" / "network_scale.py")
+    module = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(module)
+    return module

@@ -8,9 +8,7 @@ reactions, planted gross errors); the combustion network is that of test_offende
 """
 from __future__ import annotations
 
-import importlib.util
 from dataclasses import fields
-from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -19,13 +17,10 @@ import pytest
 from pipeline import network as nw
 from pipeline.checks import reactions as rc
 from pipeline.constants import T_REF
-from tests.network.helpers import const_cp, const_cp_table, network_context, reactions
+from tests.network.helpers import const_cp, const_cp_table, network_bench, network_context, reactions
 from tests.network.test_offender import C2H6, CH4, X, _rows
 
-_spec = importlib.util.spec_from_file_location(
-    "network_scale", Path(__file__).resolve().parents[2] / "bench" / "network_scale.py")
-bench = importlib.util.module_from_spec(_spec)
-_spec.loader.exec_module(bench)
+bench = network_bench()
 
 
 @pytest.fixture(scope="module")

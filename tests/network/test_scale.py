@@ -7,18 +7,13 @@ robust at N = 300 (binomial standard deviation 1.3 %).
 """
 from __future__ import annotations
 
-import importlib.util
-from pathlib import Path
-
 import numpy as np
 import pytest
 
 from pipeline import network as nw
+from tests.network.helpers import network_bench
 
-_spec = importlib.util.spec_from_file_location(
-    "network_scale", Path(__file__).resolve().parents[2] / "bench" / "network_scale.py")
-bench = importlib.util.module_from_spec(_spec)
-_spec.loader.exec_module(bench)
+bench = network_bench()
 
 
 @pytest.fixture(scope="module")
