@@ -368,10 +368,8 @@ def table_values(funcs, h_defined: dict):
 
     def values(rids, t):
         rids = np.asarray(rids, dtype=object)
-        if hasattr(funcs, "evaluate_codes"):  # each id looked up once, not once per T
-            v = funcs.evaluate_codes(rids, np.broadcast_to(np.arange(len(rids))[:, None], np.shape(t)), t)
-        else:
-            v = funcs.evaluate(np.broadcast_to(rids[:, None], np.shape(t)), t)
+        # each id looked up once, not once per T
+        v = funcs.evaluate_codes(rids, np.broadcast_to(np.arange(len(rids))[:, None], np.shape(t)), t)
         known = np.array([h_defined.get(r, False) for r in np.asarray(rids, dtype=object)])[:, None]
         return v.cp, np.where(known, v.h, v.h_minus_h298), v.s
 

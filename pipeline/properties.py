@@ -525,10 +525,7 @@ def curated_properties(preferred: pd.DataFrame, records: pd.DataFrame, species: 
                          for i in range(0, n, BLOCK_ROWS)) for ref in (ref_h, ref_g)]
     for i in range(0, n, BLOCK_ROWS):
         j = min(n, i + BLOCK_ROWS)
-        if hasattr(functions, "evaluate_codes"):  # the grid's record ids looked up once each
-            v = functions.evaluate_codes(rid_pr, owner[i:j], t[i:j])
-        else:
-            v = functions.evaluate(rid_pr[owner[i:j]], t[i:j])
+        v = functions.evaluate_codes(rid_pr, owner[i:j], t[i:j])   # the grid's record ids looked up once each
         for c, a in zip(names, (v.cp, v.h, v.s, v.g, v.h_minus_h298)):
             col[c][i:j] = a
         if with_formation:
